@@ -1,0 +1,36 @@
+//! Sightline core: what a plant is and the numerical pieces every estimator shares.
+//!
+//! A plant is written once as a [`Model`]: its transition and measurement functions are generic
+//! over the scalar type ([`Real`]), so the same code runs with `f64` in sigma-point and particle
+//! filters and with dual numbers in the extended filters, which get exact Jacobians by automatic
+//! differentiation ([`Differentiable`]).
+//!
+//! This crate owns the model trait, the [`Gaussian`] type, the fixed-step RK4 integrator
+//! ([`rk4`]), Van Loan's discretisation of process noise ([`van_loan`]), the sigma-point rules
+//! ([`SigmaRule`]), seeded random streams ([`rng`]) and the error types.
+
+pub mod ad;
+pub mod error;
+pub mod gaussian;
+pub mod integrate;
+pub mod linalg;
+pub mod model;
+pub mod params;
+pub mod real;
+pub mod rng;
+pub mod sigma;
+pub mod vanloan;
+
+pub use ad::Differentiable;
+pub use error::{NumericError, ParamError};
+pub use gaussian::Gaussian;
+pub use integrate::rk4;
+pub use model::{Alloc, Model, Variable};
+pub use params::{Domain, Parameter};
+pub use real::Real;
+pub use sigma::{SigmaPoints, SigmaRule};
+pub use vanloan::van_loan;
+
+/// Re-exported so that user models name the same nalgebra and num-dual versions as Sightline.
+pub use nalgebra;
+pub use num_dual;

@@ -1,0 +1,246 @@
+//! The `sightline` command line as a library function.
+//!
+//! [`run`] parses arguments and executes a command against a list of plants, so a user's own
+//! binary gets every command for its own plant in a few lines:
+//!
+//! ```no_run
+//! fn main() -> std::process::ExitCode {
+//!     let mut plants = sightline_eval::shipped();
+//!     // plants.push(sightline_eval::plant(MyPlant::default()));
+//!     sightline_eval::cli::main_with(plants)
+//! }
+//! ```
+
+use std::ffi::OsString;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Args, Parser, Subcommand};
+
+use crate::commands;
+use crate::error::{Error, Result};
+use crate::plant::AnyPlant;
+
+/// Nonlinear state estimation: write the plant once, compare every estimator on it.
+#[derive(Debug, Parser)]
+#[command(name = "sightline", version, about, long_about = None)]
+pub struct Cli {
+    /// The command to run.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Options shared by commands that build a plant.
+#[derive(Debug, Clone, Args)]
+pub struct PlantArgs {
+    /// Model name (see `sightline models`).
+    pub model: String,
+    /// Set a model parameter, a prior mean (`x0.<state>`) or a constant input (`u.<input>`).
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+}
+
+/// The commands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// List models: states, measurements, inputs, parameters with defaults and units.
+    Models,
+    /// Simulate a dataset with ground truth.
+    Simulate {
+        #[command(flatten)]
+        plant: PlantArgs,
+        /// Number of rows.
+        #[arg(long)]
+        steps: usize,
+        /// Random seed.
+        #[arg(long)]
+        seed: u64,
+        /// No noise; the truth starts at the prior mean.
+        #[arg(long)]
+        noise_free: bool,
+        /// Keep a measurement only every K rows (multi-rate sensor).
+        #[arg(long, value_name = "K", default_value_t = 1)]
+        every: usize,
+        /// Drop each measurement component with probability P (left empty).
+        #[arg(long, value_name = "P", default_value_t = 0.0)]
+        dropout: f64,
+        /// Output CSV file.
+        #[arg(short = 'o', long = "output", value_name = "FILE.csv")]
+        output: PathBuf,
+    },
+    /// Run every filter on one dataset; print a table and a verdict.
+    Compare {
+        #[command(flatten)]
+        plant: PlantArgs,
+        /// Dataset CSV.
+        data: PathBuf,
+        /// Filter spec KIND[:key=value,...]; repeat for several (default: every applicable kind).
+        #[arg(short = 'f', long = "filter", value_name = "SPEC")]
+        filters: Vec<String>,
+        /// Seed of the sampling filters' random streams.
+        #[arg(long, default_value_t = 0)]
+        seed: u64,
+        /// Also run the smoothers and report smoothed accuracy.
+        #[arg(long)]
+        smooth: bool,
+        /// Treat non-finite measurement cells (nan, inf) as missing instead of rejecting them.
+        #[arg(long)]
+        nonfinite_as_missing: bool,
+        /// Output directory.
+        #[arg(short = 'o', long = "output", value_name = "DIR")]
+        output: PathBuf,
+    },
+    /// Monte Carlo campaign over simulated datasets.
+    Montecarlo {
+        #[command(flatten)]
+        plant: PlantArgs,
+        /// Number of runs.
+        #[arg(long)]
+        runs: usize,
+        /// Rows per run.
+        #[arg(long)]
+        steps: usize,
+        /// Filter spec; repeat for several (default: every applicable kind).
+        #[arg(short = 'f', long = "filter", value_name = "SPEC")]
+        filters: Vec<String>,
+        /// Campaign seed; run i uses a seed derived from it and i.
+        #[arg(long, default_value_t = 0)]
+        seed: u64,
+        /// Run only shard K of N (1-based), e.g. 2/8.
+        #[arg(long, value_name = "K/N")]
+        shard: Option<String>,
+        /// Output directory.
+        #[arg(short = 'o', long = "output", value_name = "DIR")]
+        output: PathBuf,
+    },
+    /// Combine shard outputs into the unsharded result.
+    Merge {
+        /// Shard output directories.
+        #[arg(required = true)]
+        dirs: Vec<PathBuf>,
+        /// Output directory.
+        #[arg(short = 'o', long = "output", value_name = "DIR")]
+        output: PathBuf,
+    },
+    /// Maximum-likelihood tuning of model parameters (e.g. noise intensities).
+    Tune {
+        #[command(flatten)]
+        plant: PlantArgs,
+        /// Dataset CSV.
+        data: PathBuf,
+        /// Filter spec whose likelihood is maximised.
+        #[arg(short = 'f', long = "filter", value_name = "SPEC")]
+        filter: String,
+        /// Parameter to tune; repeat for several.
+        #[arg(long = "param", value_name = "NAME", required = true)]
+        params: Vec<String>,
+        /// Output directory.
+        #[arg(short = 'o', long = "output", value_name = "DIR")]
+        output: PathBuf,
+    },
+    /// The built-in scenario: simulate, compare, report.
+    Demo {
+        /// Output directory.
+        #[arg(
+            short = 'o',
+            long = "output",
+            value_name = "DIR",
+            default_value = "sightline-demo"
+        )]
+        output: PathBuf,
+    },
+}
+
+/// Parses one `--set NAME=VALUE`.
+///
+/// ```
+/// use sightline_eval::cli::parse_set;
+/// assert_eq!(parse_set("x0.angle=0.5").unwrap(), ("x0.angle".to_string(), 0.5));
+/// assert!(parse_set("q").is_err());
+/// assert!(parse_set("q=abc").is_err());
+/// ```
+pub fn parse_set(item: &str) -> Result<(String, f64)> {
+    let Some((name, value)) = item.split_once('=') else {
+        return Err(Error::Usage(format!(
+            "--set '{item}': expected NAME=VALUE, e.g. --set q=0.5"
+        )));
+    };
+    let name = name.trim();
+    if name.is_empty() {
+        return Err(Error::Usage(format!(
+            "--set '{item}': the name before '=' is empty"
+        )));
+    }
+    match value.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok((name.to_string(), v)),
+        _ => Err(Error::Usage(format!(
+            "--set '{item}': value '{}' is not a finite number",
+            value.trim()
+        ))),
+    }
+}
+
+/// Finds a plant by name and applies the `--set` overrides.
+pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<dyn AnyPlant>> {
+    let Some(found) = plants.iter().find(|p| p.name() == args.model) else {
+        return Err(Error::Usage(format!(
+            "unknown model '{}'; available models: {}",
+            args.model,
+            plants
+                .iter()
+                .map(|p| p.name())
+                .collect::<Vec<_>>()
+                .join(", ")
+        )));
+    };
+    let mut plant = found.clone_box();
+    for item in &args.set {
+        let (name, value) = parse_set(item)?;
+        plant.set(&name, value)?;
+    }
+    Ok(plant)
+}
+
+/// Parses `args` (program name first) and runs the command on `plants`.
+pub fn run<I, T>(args: I, plants: &[Box<dyn AnyPlant>]) -> Result<()>
+where
+    I: IntoIterator<Item = T>,
+    T: Into<OsString> + Clone,
+{
+    let cli = Cli::try_parse_from(args).map_err(|e| {
+        // --help and --version are not errors: clap prints them and we exit 0.
+        if matches!(
+            e.kind(),
+            clap::error::ErrorKind::DisplayHelp | clap::error::ErrorKind::DisplayVersion
+        ) {
+            let _ = e.print();
+            Error::Usage(String::new())
+        } else {
+            Error::Usage(e.render().to_string())
+        }
+    });
+    let cli = match cli {
+        Ok(c) => c,
+        Err(Error::Usage(msg)) if msg.is_empty() => return Ok(()),
+        Err(e) => return Err(e),
+    };
+    commands::dispatch(cli.command, plants)
+}
+
+/// Runs the process's command line on `plants`, prints any error and returns the exit code
+/// (0 success, 1 a run failed, 2 bad input or usage).
+pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
+    match run(std::env::args_os(), &plants) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            let text = e.to_string();
+            let text = text.trim_end();
+            if text.starts_with("error:") {
+                eprintln!("{text}");
+            } else {
+                eprintln!("error: {text}");
+            }
+            ExitCode::from(e.exit_code())
+        }
+    }
+}

@@ -1,0 +1,42 @@
+//! Datasets in the contract's CSV layout: a header row; `t` (seconds, strictly increasing);
+//! `u.<input>`, `y.<measurement>` and optional `x.<state>` (truth) columns in any order; an empty
+//! `y.` cell is a missing measurement.
+//!
+//! In memory a dataset is a [`Layout`] and a list of [`Record`]s; large files are read as a
+//! stream of records so that filtering never holds the whole file.
+
+pub mod read;
+pub mod write;
+
+/// Column names of a dataset, in model order (without the `u.`/`y.`/`x.` prefixes).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Layout {
+    /// Input names.
+    pub inputs: Vec<String>,
+    /// Measurement names.
+    pub measurements: Vec<String>,
+    /// State names (truth columns), empty when the data carries no truth.
+    pub states: Vec<String>,
+}
+
+/// One row: time, inputs, measurements (NaN = missing) and, when known, the true state.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Record {
+    /// Time (s).
+    pub t: f64,
+    /// Inputs in model order.
+    pub u: Vec<f64>,
+    /// Measurements in model order; NaN marks a missing component.
+    pub y: Vec<f64>,
+    /// True state in model order, if the dataset has truth columns.
+    pub x: Option<Vec<f64>>,
+}
+
+/// A dataset held in memory.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Dataset {
+    /// Column names.
+    pub layout: Layout,
+    /// Rows in time order.
+    pub records: Vec<Record>,
+}

@@ -1,0 +1,1 @@
+//! Reading datasets (streaming, validated, with located errors).

@@ -1,0 +1,84 @@
+//! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input).
+
+use std::path::PathBuf;
+
+use sightline_core::ParamError;
+use sightline_filters::SpecError;
+use thiserror::Error;
+
+/// Everything that can stop a Sightline command.
+#[derive(Debug, Error)]
+pub enum Error {
+    /// A malformed command line or an unknown name (exit code 2).
+    #[error("{0}")]
+    Usage(String),
+    /// A parameter that does not exist or is out of range (exit code 2).
+    #[error(transparent)]
+    Param(#[from] ParamError),
+    /// A filter spec that cannot be parsed or built (exit code 2).
+    #[error(transparent)]
+    Spec(#[from] SpecError),
+    /// A dataset problem, located in the file (exit code 2).
+    #[error("{}:{line}:{column}: {message}", path.display())]
+    Data {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// 1-based column (field number).
+        column: u64,
+        /// What is wrong and what was expected.
+        message: String,
+    },
+    /// A file that cannot be read (exit code 2: the input is missing or unreadable).
+    #[error("cannot read {}: {source}", path.display())]
+    Read {
+        /// File.
+        path: PathBuf,
+        /// Cause.
+        source: std::io::Error,
+    },
+    /// A file that cannot be written (exit code 1).
+    #[error("cannot write {}: {source}", path.display())]
+    Write {
+        /// File or directory.
+        path: PathBuf,
+        /// Cause.
+        source: std::io::Error,
+    },
+    /// A run that failed (exit code 1).
+    #[error("{0}")]
+    Run(String),
+}
+
+impl Error {
+    /// Process exit code for this error: 2 for bad input or usage, 1 for a failed run.
+    pub fn exit_code(&self) -> u8 {
+        match self {
+            Error::Usage(_)
+            | Error::Param(_)
+            | Error::Spec(_)
+            | Error::Data { .. }
+            | Error::Read { .. } => 2,
+            Error::Write { .. } | Error::Run(_) => 1,
+        }
+    }
+
+    /// A located dataset error.
+    pub fn data(
+        path: impl Into<PathBuf>,
+        line: u64,
+        column: u64,
+        message: impl Into<String>,
+    ) -> Self {
+        Error::Data {
+            path: path.into(),
+            line,
+            column,
+            message: message.into(),
+        }
+    }
+}
+
+/// Result with the crate's error.
+pub type Result<T, E = Error> = std::result::Result<T, E>;

@@ -1,0 +1,140 @@
+//! `ekf`: the extended Kalman filter with exact Jacobians by automatic differentiation.
+//!
+//! Predict: x⁻ = f(x), P⁻ = F P Fᵀ + Q with F = ∂f/∂x at x. Update: linearise h at x⁻ and apply
+//! the Kalman update with the Joseph-form covariance (e.g. Simon, *Optimal State Estimation*,
+//! 2006, §13.2). Jacobians come from num-dual in one forward pass with vector duals, or from
+//! the model's hand-written Jacobian when it supplies one (`jacobian=model`, the default).
+
+use nalgebra::DefaultAllocator;
+use sightline_core::ad::Differentiable;
+use sightline_core::{Alloc, Gaussian, Model};
+
+use crate::belief::{Belief, belief_accessors};
+use crate::filter::{Filter, FilterError};
+use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
+use crate::registry::KindInfo;
+use crate::spec::{FilterSpec, OptionInfo, SpecError};
+
+/// Registry entry.
+pub const INFO: KindInfo = KindInfo {
+    kind: "ekf",
+    about: "extended Kalman filter, exact Jacobians by automatic differentiation",
+    options: &[OptionInfo {
+        key: "jacobian",
+        default: "model",
+        about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
+    }],
+    linear_only: false,
+};
+
+/// Extended Kalman filter over plant `M`.
+///
+/// ```
+/// # use sightline_core::nalgebra::{Matrix1, Vector1, U1};
+/// # use sightline_core::{Gaussian, Model, Real, Variable};
+/// # #[derive(Clone)] struct Drift;
+/// # impl Model for Drift {
+/// #   type State = U1; type Meas = U1; type Input = U1;
+/// #   fn name(&self) -> &str { "drift" }
+/// #   fn state_dim(&self) -> U1 { U1 } fn meas_dim(&self) -> U1 { U1 } fn input_dim(&self) -> U1 { U1 }
+/// #   fn states(&self) -> Vec<Variable> { vec![Variable::new("x", "-")] }
+/// #   fn measurements(&self) -> Vec<Variable> { vec![Variable::new("y", "-")] }
+/// #   fn inputs(&self) -> Vec<Variable> { vec![Variable::new("u", "-")] }
+/// #   fn transition<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64, _: f64) -> Vector1<S> { *x }
+/// #   fn measure<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64) -> Vector1<S> { *x }
+/// #   fn process_noise(&self, _: &Vector1<f64>, _: &Vector1<f64>, _: f64, _: f64) -> Matrix1<f64> { Matrix1::new(0.0) }
+/// #   fn measurement_noise(&self, _: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
+/// #   fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
+/// #   fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
+/// #   fn dt(&self) -> f64 { 1.0 }
+/// # }
+/// use sightline_filters::{Ekf, Filter};
+/// let mut ekf = Ekf::new(Drift, Drift.prior(), "ekf");
+/// ekf.update(&[2.0], &[0.0], 0.0).unwrap();
+/// assert!((ekf.mean()[0] - 1.0).abs() < 1e-12); // equal prior and noise variances: halfway
+/// ```
+#[derive(Debug, Clone)]
+pub struct Ekf<M: Model>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    belief: Belief<M>,
+    source: JacobianSource,
+}
+
+impl<M: Model> Ekf<M>
+where
+    M::State: Differentiable,
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    /// An EKF starting from `prior`, labelled `label`.
+    pub fn new(model: M, prior: Gaussian<M::State>, label: &str) -> Self {
+        Ekf {
+            belief: Belief::new(model, prior, label),
+            source: JacobianSource::Model,
+        }
+    }
+
+    /// Chooses where Jacobians come from.
+    pub fn with_jacobians(mut self, source: JacobianSource) -> Self {
+        self.source = source;
+        self
+    }
+}
+
+/// Builds an `ekf` from a spec.
+pub fn build<M: Model>(
+    model: &M,
+    prior: &Gaussian<M::State>,
+    spec: &FilterSpec,
+    _seed: u64,
+) -> Result<Box<dyn Filter>, SpecError>
+where
+    M::State: Differentiable,
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    let opts = spec.options(INFO.options)?;
+    let source = match opts.choice("jacobian", "model", &["model", "ad"])? {
+        "ad" => JacobianSource::Automatic,
+        _ => JacobianSource::Model,
+    };
+    Ok(Box::new(
+        Ekf::new(model.clone(), prior.clone(), &spec.label).with_jacobians(source),
+    ))
+}
+
+impl<M: Model> Filter for Ekf<M>
+where
+    M::State: Differentiable,
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    belief_accessors!(belief);
+
+    fn kind(&self) -> &'static str {
+        INFO.kind
+    }
+
+    fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
+        let b = &mut self.belief;
+        b.tag.step += 1;
+        let u = b.input(u)?;
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
+        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        b.mean = fx;
+        b.cov = &f * &b.cov * f.transpose() + q;
+        b.finish_predict()
+    }
+
+    fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
+        let b = &mut self.belief;
+        let u = b.input(u)?;
+        let (y, present) = b.measurement(y)?;
+        if present == 0 {
+            b.innov.clear();
+            return Ok(());
+        }
+        let (predicted, h) = measurement_jacobian(&b.model, &b.mean, &u, t, self.source);
+        let r = b.model.measurement_noise(t);
+        b.linear_update(&y, present, &predicted, h, &r, None)
+    }
+}

@@ -1,0 +1,24 @@
+//! Sightline filters: every estimator behind one object-safe [`Filter`] trait.
+//!
+//! One file per filter family; each builds from a spec string (`ukf:alpha=0.5`) through the
+//! [`registry`]. Gaussian filters share the belief, the masked update for missing measurement
+//! components and the Joseph-form covariance; with static plant sizes a predict+update step
+//! performs no heap allocation.
+
+mod belief;
+pub mod ekf;
+pub mod filter;
+pub mod kf;
+pub mod linearise;
+pub mod registry;
+pub mod sigma_point;
+pub mod spec;
+mod update;
+
+pub use ekf::Ekf;
+pub use filter::{Diagnostics, Filter, FilterError, Innovation};
+pub use kf::{Gain, Kf};
+pub use linearise::JacobianSource;
+pub use registry::{KINDS, KindInfo, build, default_kinds};
+pub use sigma_point::SigmaPointFilter;
+pub use spec::{FilterSpec, OptionInfo, Options, SpecError};

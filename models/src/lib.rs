@@ -1,0 +1,33 @@
+//! Sightline plant library: shipped plant models with published parameters, one file each.
+//!
+//! Every model implements [`sightline_core::Model`]; its parameters, their units and sources are
+//! in its doc comment and listed by `sightline models`. Adding a plant is one file plus one line
+//! in [`visit_all`].
+
+use sightline_core::ad::Differentiable;
+use sightline_core::nalgebra::DefaultAllocator;
+use sightline_core::{Alloc, Model};
+
+pub mod cv;
+pub mod pendulum;
+
+pub use cv::Cv;
+pub use pendulum::Pendulum;
+
+/// Something that can be handed every shipped model in turn, whatever its concrete type.
+///
+/// The model registry is a visitor rather than a list because models differ in type (and
+/// dimension); the evaluation crate's visitor boxes each into its type-erased plant handle.
+pub trait ModelVisitor {
+    /// Receives one model.
+    fn visit<M: Model>(&mut self, model: M)
+    where
+        M::State: Differentiable,
+        DefaultAllocator: Alloc<M::State, M::Meas, M::Input>;
+}
+
+/// Hands every shipped model, with its default parameters, to `visitor` — the model registry.
+pub fn visit_all(visitor: &mut impl ModelVisitor) {
+    visitor.visit(Pendulum::default());
+    visitor.visit(Cv::default());
+}
