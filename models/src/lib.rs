@@ -10,9 +10,11 @@ use sightline_core::{Alloc, Model};
 
 pub mod cv;
 pub mod pendulum;
+pub mod ungm;
 
 pub use cv::Cv;
 pub use pendulum::Pendulum;
+pub use ungm::Ungm;
 
 /// Something that can be handed every shipped model in turn, whatever its concrete type.
 ///
@@ -30,4 +32,5 @@ pub trait ModelVisitor {
 pub fn visit_all(visitor: &mut impl ModelVisitor) {
     visitor.visit(Pendulum::default());
     visitor.visit(Cv::default());
+    visitor.visit(Ungm::default());
 }
