@@ -6,6 +6,7 @@ pub mod commands;
 pub mod dataset;
 pub mod error;
 pub mod output;
+pub mod pcrlb;
 pub mod plant;
 pub mod simulate;
 
