@@ -18,7 +18,9 @@ fn pcrlb_equals_kalman_covariance_on_cv() {
     };
     let data = cv.simulate(400, 11, &options).unwrap();
     let bound = cv.pcrlb(std::slice::from_ref(&data)).unwrap();
-    let mut kf = cv.build_filter(&FilterSpec::parse("kf").unwrap(), 0).unwrap();
+    let mut kf = cv
+        .build_filter(&FilterSpec::parse("kf").unwrap(), 0)
+        .unwrap();
     let mut prev: Option<(f64, Vec<f64>)> = None;
     let mut compared = 0;
     for (k, r) in data.records.iter().enumerate() {
@@ -49,7 +51,11 @@ fn pcrlb_equals_kalman_covariance_on_cv() {
 #[test]
 fn pcrlb_decreases_with_better_sensors() {
     let plants = shipped();
-    let mut p = plants.iter().find(|p| p.name() == "pendulum").unwrap().clone_box();
+    let mut p = plants
+        .iter()
+        .find(|p| p.name() == "pendulum")
+        .unwrap()
+        .clone_box();
     let truths: Vec<_> = (0..20)
         .map(|s| p.simulate(300, s, &SimOptions::default()).unwrap())
         .collect();

@@ -9,6 +9,7 @@ pub mod output;
 pub mod pcrlb;
 pub mod plant;
 pub mod simulate;
+pub mod tune;
 
 pub use error::{Error, Result};
 pub use plant::{AnyPlant, Plant, plant, shipped};
