@@ -47,9 +47,9 @@ pub fn ensure_finite<'a>(
 }
 
 /// Smallest eigenvalue of a symmetric matrix (for soundness checks and covariance repair).
-pub fn min_eigenvalue<N: Dim>(p: &OMatrix<f64, N, N>) -> f64
+pub fn min_eigenvalue<N>(p: &OMatrix<f64, N, N>) -> f64
 where
-    N: nalgebra::DimSub<nalgebra::U1>,
+    N: Dim + nalgebra::DimSub<nalgebra::U1>,
     DefaultAllocator:
         Allocator<N, N> + Allocator<N> + Allocator<<N as nalgebra::DimSub<nalgebra::U1>>::Output>,
 {

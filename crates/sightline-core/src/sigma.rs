@@ -79,7 +79,7 @@ impl SigmaRule {
                 let nf = n as f64;
                 let lambda = alpha * alpha * (nf + kappa) - nf;
                 let c = nf + lambda;
-                if !(c > 0.0) || !c.is_finite() {
+                if c.is_nan() || c <= 0.0 || !c.is_finite() {
                     return Err(SigmaError::Invalid(format!(
                         "unscented rule needs n + λ = α²(n+κ) > 0, got {c} (α={alpha}, κ={kappa}, n={n})"
                     )));
