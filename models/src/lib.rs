@@ -8,12 +8,21 @@ use sightline_core::ad::Differentiable;
 use sightline_core::nalgebra::DefaultAllocator;
 use sightline_core::{Alloc, Model};
 
+pub mod cstr;
 pub mod cv;
 pub mod pendulum;
+pub mod quadtank;
+pub mod tankchain;
+pub mod torricelli;
+pub mod tracking;
 pub mod ungm;
 
+pub use cstr::Cstr;
 pub use cv::Cv;
 pub use pendulum::Pendulum;
+pub use quadtank::QuadTank;
+pub use tankchain::TankChain;
+pub use tracking::Tracking;
 pub use ungm::Ungm;
 
 /// Something that can be handed every shipped model in turn, whatever its concrete type.
@@ -33,4 +42,8 @@ pub fn visit_all(visitor: &mut impl ModelVisitor) {
     visitor.visit(Pendulum::default());
     visitor.visit(Cv::default());
     visitor.visit(Ungm::default());
+    visitor.visit(QuadTank::default());
+    visitor.visit(Cstr::default());
+    visitor.visit(Tracking::default());
+    visitor.visit(TankChain::default());
 }
