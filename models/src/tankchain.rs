@@ -195,7 +195,7 @@ impl Model for TankChain {
                 self.n as f64,
                 "-",
                 Domain::Integer(1, MAX_TANKS),
-                "number of tanks (the state dimension); set it before any x0.<state>",
+                "number of tanks (the state dimension)",
             ),
             Parameter::new(
                 "area",

@@ -31,6 +31,14 @@ pub fn smooth_level<S: Real>(h: S, eps: f64) -> S {
 }
 
 /// Outflow a·√(2g·ĥ(h)) of an outlet of area `a` at level `h` (cm³/s for cm, cm², cm/s²).
+///
+/// ```
+/// use sightline_models::torricelli::outflow;
+/// // Torricelli's law a·√(2gh) above the outlet; a small positive trickle, never NaN, below it.
+/// let q = outflow(0.071, 981.0, 12.4, 1e-3);
+/// assert!((q - 0.071 * (2.0 * 981.0 * 12.4f64).sqrt()).abs() < 1e-6);
+/// assert!(outflow(0.071, 981.0, -2.0, 1e-3) > 0.0);
+/// ```
 pub fn outflow<S: Real>(a: f64, g: f64, h: S, eps: f64) -> S {
     (smooth_level(h, eps) * (2.0 * g)).sqrt() * a
 }

@@ -39,6 +39,12 @@ type NoInput = SVector<f64, 0>;
 const SERIES_BELOW: f64 = 0.1;
 
 /// sin θ / θ, smooth through θ = 0 (series: Abramowitz & Stegun 4.3.65).
+///
+/// ```
+/// use sightline_models::tracking::sin_over;
+/// assert_eq!(sin_over(0.0), 1.0);
+/// assert!((sin_over(0.5f64) - 0.5f64.sin() / 0.5).abs() < 1e-16);
+/// ```
 pub fn sin_over<S: Real>(theta: S) -> S {
     if theta.re().abs() < SERIES_BELOW {
         let t2 = theta * theta;
@@ -104,12 +110,12 @@ impl Default for Tracking {
         Tracking {
             dt: 1.0,
             q: 0.04,
-            q_omega: 1e-6,
+            q_omega: 1e-8,
             r_range: 25.0,
             r_bearing: 1e-4,
             sensor: Vector2::new(0.0, 0.0),
             x0: Vector5::new(1000.0, 0.0, 0.0, 15.0, 0.02),
-            sd0: Vector5::new(20.0, 20.0, 2.0, 2.0, 0.01),
+            sd0: Vector5::new(20.0, 20.0, 1.0, 1.0, 0.002),
         }
     }
 }
