@@ -127,6 +127,12 @@ def van_loan():
     qc = g @ g.T
     for dt in (0.2, 2.0):
         cases.append(van_loan_case(f"coupled lag chain dt={dt}", a, qc, dt))
+    # Twenty states with dense, equal coupling: every entry is small but the matrix norm is not,
+    # which catches a scaling rule that looks at entries rather than at a norm.
+    n = 20
+    a = 0.6 * np.ones((n, n)) - np.eye(n)
+    qc = 0.1 * np.eye(n) + 0.05 * np.ones((n, n))
+    cases.append(van_loan_case("dense 20-state coupling dt=1.0", a, qc, 1.0))
     write("van_loan.json", {"cases": cases})
 
 
