@@ -82,7 +82,11 @@ fn iterated_update_converges_to_the_map_estimate() {
     let x = iekf.mean()[0];
     // Stationary point of J, relative to the scale of its terms.
     let scale = 3.0 * x * x * y.abs() / R;
-    assert!(cost_gradient(x, y).abs() <= 1e-9 * scale, "dJ/dx({x}) = {}", cost_gradient(x, y));
+    assert!(
+        cost_gradient(x, y).abs() <= 1e-9 * scale,
+        "dJ/dx({x}) = {}",
+        cost_gradient(x, y)
+    );
     let used = iekf.diagnostics().iterations;
     assert!(used > 2 && used < 50, "{used} iterations");
     // The EKF stops after the first Gauss–Newton step, away from the stationary point.
@@ -103,9 +107,19 @@ fn one_iteration_is_the_ekf() {
 
 #[test]
 fn options_are_checked() {
-    for bad in ["iekf:iterations=0", "iekf:tol=-1", "iekf:tol=abc", "iekf:steps=3"] {
+    for bad in [
+        "iekf:iterations=0",
+        "iekf:tol=-1",
+        "iekf:tol=abc",
+        "iekf:steps=3",
+    ] {
         let spec = FilterSpec::parse(bad).unwrap();
-        let err = build(&Cubic, &Cubic.prior(), &spec, 0).err().map(|e| e.to_string());
-        assert!(err.as_deref().is_some_and(|e| e.contains(bad)), "{bad}: {err:?}");
+        let err = build(&Cubic, &Cubic.prior(), &spec, 0)
+            .err()
+            .map(|e| e.to_string());
+        assert!(
+            err.as_deref().is_some_and(|e| e.contains(bad)),
+            "{bad}: {err:?}"
+        );
     }
 }

@@ -49,7 +49,12 @@ fn every_gaussian_filter_reproduces_the_kalman_filter_and_the_dare() {
                 let scale = b.abs() + kf_cov[i * n + i].sqrt();
                 let rel = (a - b).abs() / scale;
                 worst_mean = worst_mean.max(rel);
-                assert!(rel <= 1e-7, "{} at t={}: mean {a} vs kf {b}", f.label(), r.t);
+                assert!(
+                    rel <= 1e-7,
+                    "{} at t={}: mean {a} vs kf {b}",
+                    f.label(),
+                    r.t
+                );
             }
             for (idx, (a, b)) in f.covariance().iter().zip(&kf_cov).enumerate() {
                 let (i, j) = (idx % n, idx / n);
@@ -58,10 +63,21 @@ fn every_gaussian_filter_reproduces_the_kalman_filter_and_the_dare() {
                 assert!(rel <= 1e-7, "{} at t={}: cov {a} vs kf {b}", f.label(), r.t);
             }
             if let (Some(a), Some(b)) = (f.innovation(), filters[0].innovation()) {
-                assert!((a.nis - b.nis).abs() <= 1e-7 * (1.0 + b.nis), "{} NIS", f.label());
+                assert!(
+                    (a.nis - b.nis).abs() <= 1e-7 * (1.0 + b.nis),
+                    "{} NIS",
+                    f.label()
+                );
             }
-            let (a, b) = (f.log_likelihood_increment(), filters[0].log_likelihood_increment());
-            assert!((a - b).abs() <= 1e-7 * (1.0 + b.abs()), "{} log-lik {a} vs {b}", f.label());
+            let (a, b) = (
+                f.log_likelihood_increment(),
+                filters[0].log_likelihood_increment(),
+            );
+            assert!(
+                (a - b).abs() <= 1e-7 * (1.0 + b.abs()),
+                "{} log-lik {a} vs {b}",
+                f.label()
+            );
         }
         previous = Some((r.t, r.u.clone()));
     }
@@ -70,7 +86,11 @@ fn every_gaussian_filter_reproduces_the_kalman_filter_and_the_dare() {
     // Reference: scipy.linalg.solve_discrete_are(Fᵀ, Hᵀ, Q, R) for the filtering Riccati
     // equation at cv's default parameters (fixture from tests/reference/make_fixtures.py).
     let dare = common::fixture("dare_cv.json");
-    assert_eq!(dare["dt"].as_f64(), Some(cv.dt()), "fixture scenario is cv's default");
+    assert_eq!(
+        dare["dt"].as_f64(),
+        Some(cv.dt()),
+        "fixture scenario is cv's default"
+    );
     let p_pred = common::matrix(&dare["P_pred"]);
     let p_filt = common::matrix(&dare["P_filt"]);
     let last = data.records.last().unwrap();
@@ -79,8 +99,15 @@ fn every_gaussian_filter_reproduces_the_kalman_filter_and_the_dare() {
     for f in &filters {
         let got = DMatrix::from_column_slice(2, 2, f.covariance());
         let rel = (&got - &p_filt).abs().max() / p_filt.abs().max();
-        assert!(rel <= 1e-9, "{}: filtered covariance {got} vs DARE {p_filt}", f.label());
+        assert!(
+            rel <= 1e-9,
+            "{}: filtered covariance {got} vs DARE {p_filt}",
+            f.label()
+        );
     }
     let rel = (&got_pred - &p_pred).abs().max() / p_pred.abs().max();
-    assert!(rel <= 1e-9, "predicted covariance {got_pred} vs DARE {p_pred}");
+    assert!(
+        rel <= 1e-9,
+        "predicted covariance {got_pred} vs DARE {p_pred}"
+    );
 }

@@ -140,7 +140,9 @@ fn allocations_per_run(plant: &dyn AnyPlant, specs: &[&str]) -> Vec<(String, usi
     let warm_up = 10;
     let mut counts = Vec::new();
     for spec in specs {
-        let mut f: Box<dyn Filter> = plant.build_filter(&FilterSpec::parse(spec).unwrap(), 0).unwrap();
+        let mut f: Box<dyn Filter> = plant
+            .build_filter(&FilterSpec::parse(spec).unwrap(), 0)
+            .unwrap();
         let rows = &data.records;
         for k in 0..warm_up {
             let previous = (k > 0).then(|| (rows[k - 1].t, rows[k - 1].u.as_slice()));
@@ -177,8 +179,14 @@ fn gaussian_filter_steps_do_not_allocate_for_static_sizes() {
     linear.extend(GAUSSIAN_NONLINEAR);
     let mut results = allocations_per_run(cv.as_ref(), &linear);
     results.extend(allocations_per_run(pendulum.as_ref(), &GAUSSIAN_NONLINEAR));
-    results.extend(allocations_per_run(two_sensor.as_ref(), &GAUSSIAN_NONLINEAR));
+    results.extend(allocations_per_run(
+        two_sensor.as_ref(),
+        &GAUSSIAN_NONLINEAR,
+    ));
     let offenders: Vec<_> = results.iter().filter(|(_, n)| *n > 0).collect();
-    assert!(offenders.is_empty(), "allocations in the step loop: {offenders:?}");
+    assert!(
+        offenders.is_empty(),
+        "allocations in the step loop: {offenders:?}"
+    );
     assert_eq!(results.len(), linear.len() + 2 * GAUSSIAN_NONLINEAR.len());
 }

@@ -108,21 +108,31 @@ fn first_error(model: &Faulty, spec: &str) -> FilterError {
         if let Err(e) = common::step(f.as_mut(), previous, k as f64, &[y], &[]) {
             return e;
         }
-        assert!(f.mean()[0].is_finite() && f.covariance()[0].is_finite(), "{spec}: NaN leaked at step {k}");
+        assert!(
+            f.mean()[0].is_finite() && f.covariance()[0].is_finite(),
+            "{spec}: NaN leaked at step {k}"
+        );
     }
     panic!("{spec}: no error within 10 steps");
 }
 
 /// Checks the error is `Numeric` at `step` for `spec`, and that its message says so.
 fn numeric_at(err: &FilterError, spec: &str, step: usize) -> NumericError {
-    let FilterError::Numeric { label, step: got, source } = err else {
+    let FilterError::Numeric {
+        label,
+        step: got,
+        source,
+    } = err
+    else {
         panic!("{spec}: expected a numeric error, got {err:?}");
     };
     assert_eq!(label, spec);
     assert_eq!(*got, step, "{spec}: {err}");
     let text = err.to_string();
     let quantity = match source {
-        NumericError::NotPositiveDefinite { quantity } | NumericError::NonFinite { quantity } => *quantity,
+        NumericError::NotPositiveDefinite { quantity } | NumericError::NonFinite { quantity } => {
+            *quantity
+        }
     };
     assert!(!quantity.is_empty());
     assert!(
@@ -138,7 +148,13 @@ fn nan_from_the_transition_is_reported_where_it_arises() {
     for spec in KINDS {
         let err = first_error(&Faulty(Fault::NanTransition), spec);
         let source = numeric_at(&err, spec, 4);
-        assert_eq!(source, NumericError::NonFinite { quantity: "predicted mean" }, "{spec}");
+        assert_eq!(
+            source,
+            NumericError::NonFinite {
+                quantity: "predicted mean"
+            },
+            "{spec}"
+        );
     }
 }
 
@@ -147,7 +163,10 @@ fn nan_from_the_measurement_is_reported_where_it_arises() {
     for spec in KINDS {
         let err = first_error(&Faulty(Fault::NanMeasurement), spec);
         let source = numeric_at(&err, spec, 3);
-        assert!(matches!(source, NumericError::NonFinite { .. }), "{spec}: {err}");
+        assert!(
+            matches!(source, NumericError::NonFinite { .. }),
+            "{spec}: {err}"
+        );
     }
 }
 
@@ -156,7 +175,10 @@ fn a_covariance_that_loses_definiteness_is_a_typed_error() {
     for spec in KINDS {
         let err = first_error(&Faulty(Fault::NegativeNoise), spec);
         let source = numeric_at(&err, spec, 1);
-        assert!(matches!(source, NumericError::NotPositiveDefinite { .. }), "{spec}: {err}");
+        assert!(
+            matches!(source, NumericError::NotPositiveDefinite { .. }),
+            "{spec}: {err}"
+        );
     }
 }
 
@@ -168,9 +190,17 @@ fn a_square_root_downdate_that_loses_definiteness_is_a_typed_error() {
     // unscented weights of Julier, ACC 2002; the negative-weight caveat documented on the rule).
     let err = first_error(&Faulty(Fault::Square), "srukf:alpha=0.1,beta=-1");
     let source = numeric_at(&err, "srukf:alpha=0.1,beta=-1", 1);
-    assert_eq!(source, NumericError::NotPositiveDefinite { quantity: "predicted covariance" });
+    assert_eq!(
+        source,
+        NumericError::NotPositiveDefinite {
+            quantity: "predicted covariance"
+        }
+    );
     // The covariance form of the same filter fails at the same step when it next needs the factor.
     let err = first_error(&Faulty(Fault::Square), "ukf:alpha=0.1,beta=-1");
     let source = numeric_at(&err, "ukf:alpha=0.1,beta=-1", 1);
-    assert!(matches!(source, NumericError::NotPositiveDefinite { .. }), "{err}");
+    assert!(
+        matches!(source, NumericError::NotPositiveDefinite { .. }),
+        "{err}"
+    );
 }

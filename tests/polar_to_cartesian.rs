@@ -102,10 +102,16 @@ fn linearisation_is_biased_and_the_unscented_mean_is_not() {
     // Closed form: r and θ independent and E[e^{iθ}] = e^{iθ̄ − σ²/2} (characteristic function of
     // a Gaussian), so E[(x, y)] = r̄ e^{−σ_θ²/2} (cos θ̄, sin θ̄).
     let shrink = (-SD_BEARING.powi(2) / 2.0).exp();
-    let exact = Vector2::new(RANGE * shrink * BEARING.cos(), RANGE * shrink * BEARING.sin());
+    let exact = Vector2::new(
+        RANGE * shrink * BEARING.cos(),
+        RANGE * shrink * BEARING.sin(),
+    );
     for i in 0..2 {
         // The Monte Carlo mean agrees with the closed form within 3 standard errors.
-        assert!((mc[i] - exact[i]).abs() <= 3.0 * se[i], "MC {mc} vs exact {exact} (se {se})");
+        assert!(
+            (mc[i] - exact[i]).abs() <= 3.0 * se[i],
+            "MC {mc} vs exact {exact} (se {se})"
+        );
     }
 
     // Linearisation maps the mean: (0, 1), biased in y by 1 − e^{−σ²/2} ≈ 0.034, hundreds of
@@ -113,7 +119,10 @@ fn linearisation_is_biased_and_the_unscented_mean_is_not() {
     let ekf = predicted_mean("ekf");
     assert!((ekf[1] - 1.0).abs() < 1e-15);
     let bias = (ekf[1] - mc[1]).abs() / se[1];
-    assert!(bias > 100.0, "linearised mean should be biased: {bias:.1} standard errors");
+    assert!(
+        bias > 100.0,
+        "linearised mean should be biased: {bias:.1} standard errors"
+    );
 
     // Unscented: κ = 1 gives n + κ = 3 for n = 2, which matches the Gaussian's fourth moment
     // along each axis (Julier & Uhlmann 2004), the choice made in that example. Its error
@@ -128,7 +137,10 @@ fn linearisation_is_biased_and_the_unscented_mean_is_not() {
             z[0], z[1]
         );
         for i in 0..2 {
-            assert!((ut[i] - exact[i]).abs() <= 0.1 * se[i], "{spec}: {ut} vs exact {exact}");
+            assert!(
+                (ut[i] - exact[i]).abs() <= 0.1 * se[i],
+                "{spec}: {ut} vs exact {exact}"
+            );
             assert!(z[i].abs() <= 3.0, "{spec}: {ut} vs MC {mc} (se {se})");
         }
     }

@@ -126,7 +126,13 @@ fn kalman_filter_matches_the_closed_form() {
 }
 
 /// Mean squared estimation error over the steps after `burn_in`, with the last reported variance.
-fn long_run(spec: &str, model: &RandomConstant, truth: f64, ys: &[f64], burn_in: usize) -> (f64, f64) {
+fn long_run(
+    spec: &str,
+    model: &RandomConstant,
+    truth: f64,
+    ys: &[f64],
+    burn_in: usize,
+) -> (f64, f64) {
     let plant = sightline::plant(model.clone());
     let mut f = plant
         .build_filter(&FilterSpec::parse(spec).unwrap(), 0)
@@ -145,13 +151,18 @@ fn long_run(spec: &str, model: &RandomConstant, truth: f64, ys: &[f64], burn_in:
 #[test]
 fn fixed_gain_observer_has_the_closed_form_steady_error() {
     let r = 1.0;
-    let model = RandomConstant { r, x0: 0.0, p0: 1.0 };
+    let model = RandomConstant {
+        r,
+        x0: 0.0,
+        p0: 1.0,
+    };
     let steps = 400_000;
     let burn_in = 2_000;
     let (truth, ys) = measurements(&model, steps, 29);
     let mut mse = Vec::new();
     for gain in [0.2, 0.8] {
-        let (measured, reported) = long_run(&format!("kf:gain={gain}"), &model, truth, &ys, burn_in);
+        let (measured, reported) =
+            long_run(&format!("kf:gain={gain}"), &model, truth, &ys, burn_in);
         // Closed form (common practice): e(k) = (1−L)e(k−1) + L v(k), so the steady error
         // variance is L²R/(1 − (1−L)²) = L·R/(2 − L): 0.111·R for L = 0.2, 0.667·R for L = 0.8.
         let expected = gain * r / (2.0 - gain);
@@ -172,7 +183,12 @@ fn fixed_gain_observer_has_the_closed_form_steady_error() {
         eprintln!("gain {gain}: MSE {measured:.5} R, closed form {expected:.5} R, se {se:.5}");
         mse.push(measured);
     }
-    assert!(mse[0] < mse[1], "gain 0.2 ({}) should beat 0.8 ({})", mse[0], mse[1]);
+    assert!(
+        mse[0] < mse[1],
+        "gain 0.2 ({}) should beat 0.8 ({})",
+        mse[0],
+        mse[1]
+    );
     // The optimal filter's error variance keeps shrinking like R/k: it beats both.
     let (kf, _) = long_run("kf", &model, truth, &ys, burn_in);
     eprintln!("kf: MSE {kf:.3e} R");

@@ -16,10 +16,12 @@ struct CoupledWalks {
 
 impl CoupledWalks {
     fn coupling(&self) -> DMatrix<f64> {
-        DMatrix::from_fn(self.n, self.n, |i, j| match (i as isize - j as isize).abs() {
-            0 => 0.95,
-            1 => 0.05,
-            _ => 0.0,
+        DMatrix::from_fn(self.n, self.n, |i, j| {
+            match (i as isize - j as isize).abs() {
+                0 => 0.95,
+                1 => 0.05,
+                _ => 0.0,
+            }
         })
     }
 }
@@ -41,10 +43,14 @@ impl Model for CoupledWalks {
         U0
     }
     fn states(&self) -> Vec<Variable> {
-        (0..self.n).map(|i| Variable::new(format!("w{i}"), "-")).collect()
+        (0..self.n)
+            .map(|i| Variable::new(format!("w{i}"), "-"))
+            .collect()
     }
     fn measurements(&self) -> Vec<Variable> {
-        (0..self.n).map(|i| Variable::new(format!("w{i}"), "-")).collect()
+        (0..self.n)
+            .map(|i| Variable::new(format!("w{i}"), "-"))
+            .collect()
     }
     fn inputs(&self) -> Vec<Variable> {
         Vec::new()
@@ -59,7 +65,11 @@ impl Model for CoupledWalks {
         x.clone()
     }
     fn process_noise(&self, _x: &DVector<f64>, _u: &NoInput, _t: f64, dt: f64) -> DMatrix<f64> {
-        DMatrix::from_fn(self.n, self.n, |i, j| if i == j { 0.02 * dt } else { 0.005 * dt })
+        DMatrix::from_fn(
+            self.n,
+            self.n,
+            |i, j| if i == j { 0.02 * dt } else { 0.005 * dt },
+        )
     }
     fn measurement_noise(&self, _t: f64) -> DMatrix<f64> {
         DMatrix::from_fn(self.n, self.n, |i, j| if i == j { 0.1 } else { 0.0 })
@@ -94,7 +104,11 @@ fn every_gaussian_filter_runs_on_a_runtime_sized_plant_and_agrees_with_kf() {
     let specs = ["kf", "ekf", "iekf", "ukf", "ckf", "ghkf", "srukf"];
     let mut filters: Vec<_> = specs
         .iter()
-        .map(|s| plant.build_filter(&FilterSpec::parse(s).unwrap(), 0).unwrap())
+        .map(|s| {
+            plant
+                .build_filter(&FilterSpec::parse(s).unwrap(), 0)
+                .unwrap()
+        })
         .collect();
     let mut previous: Option<(f64, Vec<f64>)> = None;
     let mut worst = 0.0f64;
@@ -111,7 +125,12 @@ fn every_gaussian_filter_runs_on_a_runtime_sized_plant_and_agrees_with_kf() {
             for (i, (a, b)) in f.mean().iter().zip(&kf_mean).enumerate() {
                 let rel = (a - b).abs() / (b.abs() + kf_cov[i * n + i].sqrt());
                 worst = worst.max(rel);
-                assert!(rel <= 1e-7, "{} at t={}: mean {a} vs kf {b}", f.label(), r.t);
+                assert!(
+                    rel <= 1e-7,
+                    "{} at t={}: mean {a} vs kf {b}",
+                    f.label(),
+                    r.t
+                );
             }
             for (idx, (a, b)) in f.covariance().iter().zip(&kf_cov).enumerate() {
                 let (i, j) = (idx % n, idx / n);
@@ -119,12 +138,23 @@ fn every_gaussian_filter_runs_on_a_runtime_sized_plant_and_agrees_with_kf() {
                 worst = worst.max(rel);
                 assert!(rel <= 1e-7, "{} at t={}: cov {a} vs kf {b}", f.label(), r.t);
             }
-            let (a, b) = (f.log_likelihood_increment(), filters[0].log_likelihood_increment());
-            assert!((a - b).abs() <= 1e-7 * (1.0 + b.abs()), "{} log-lik {a} vs {b}", f.label());
+            let (a, b) = (
+                f.log_likelihood_increment(),
+                filters[0].log_likelihood_increment(),
+            );
+            assert!(
+                (a - b).abs() <= 1e-7 * (1.0 + b.abs()),
+                "{} log-lik {a} vs {b}",
+                f.label()
+            );
             match (f.innovation(), filters[0].innovation()) {
                 (Some(a), Some(b)) => {
                     assert_eq!(a.present, b.present);
-                    assert!((a.nis - b.nis).abs() <= 1e-7 * (1.0 + b.nis), "{} NIS", f.label());
+                    assert!(
+                        (a.nis - b.nis).abs() <= 1e-7 * (1.0 + b.nis),
+                        "{} NIS",
+                        f.label()
+                    );
                 }
                 (None, None) => {}
                 _ => panic!("{}: innovation presence differs from kf", f.label()),

@@ -23,7 +23,10 @@ fn van_loan_matches_scipy_expm() {
         let phi_ref = common::matrix(&case["Phi"]);
         let qd_ref = common::matrix(&case["Qd"]);
         // Van Loan's Φ is e^{A dt} itself (scipy.linalg.expm(A dt)).
-        assert!(relative(&phi_ref, &common::matrix(&case["Phi_expm"])) < 1e-12, "{name}: fixture");
+        assert!(
+            relative(&phi_ref, &common::matrix(&case["Phi_expm"])) < 1e-12,
+            "{name}: fixture"
+        );
         let (phi, qd) = van_loan(&a, &qc, dt);
         let (e_phi, e_qd) = (relative(&phi, &phi_ref), relative(&qd, &qd_ref));
         eprintln!("{name}: relative error Φ {e_phi:.1e}, Q_d {e_qd:.1e}");
@@ -34,8 +37,18 @@ fn van_loan_matches_scipy_expm() {
             let a2 = Matrix2::from_iterator(a.iter().copied());
             let q2 = Matrix2::from_iterator(qc.iter().copied());
             let (phi2, qd2) = van_loan(&a2, &q2, dt);
-            assert!((DMatrix::from_column_slice(2, 2, phi2.as_slice()) - &phi).abs().max() < 1e-15);
-            assert!((DMatrix::from_column_slice(2, 2, qd2.as_slice()) - &qd).abs().max() < 1e-15);
+            assert!(
+                (DMatrix::from_column_slice(2, 2, phi2.as_slice()) - &phi)
+                    .abs()
+                    .max()
+                    < 1e-15
+            );
+            assert!(
+                (DMatrix::from_column_slice(2, 2, qd2.as_slice()) - &qd)
+                    .abs()
+                    .max()
+                    < 1e-15
+            );
         }
     }
 }

@@ -146,7 +146,8 @@ where
         }
         if downdate {
             let r2 = (a - b) * (a + b);
-            if !(r2 > 0.0) || !(a > 0.0) {
+            let definite = r2 > 0.0 && a > 0.0;
+            if !definite {
                 return Err(NumericError::NotPositiveDefinite { quantity });
             }
             let r = r2.sqrt();
@@ -234,9 +235,9 @@ where
 }
 
 /// Smallest eigenvalue of a symmetric matrix (for soundness checks and covariance repair).
-pub fn min_eigenvalue<N: Dim>(p: &OMatrix<f64, N, N>) -> f64
+pub fn min_eigenvalue<N>(p: &OMatrix<f64, N, N>) -> f64
 where
-    N: nalgebra::DimSub<nalgebra::U1>,
+    N: Dim + nalgebra::DimSub<nalgebra::U1>,
     DefaultAllocator:
         Allocator<N, N> + Allocator<N> + Allocator<<N as nalgebra::DimSub<nalgebra::U1>>::Output>,
 {

@@ -32,7 +32,8 @@ where
     /// needs a true norm: the largest entry understates it by up to the dimension, which left
     /// dense plants with a truncated series.
     fn norm1(&self) -> f64 {
-        let column_sum = |m: &OMatrix<f64, N, N>, j: usize| m.column(j).iter().map(|v| v.abs()).sum::<f64>();
+        let column_sum =
+            |m: &OMatrix<f64, N, N>, j: usize| m.column(j).iter().map(|v| v.abs()).sum::<f64>();
         (0..self.f.ncols())
             .map(|j| column_sum(&self.f, j).max(column_sum(&self.g, j) + column_sum(&self.h, j)))
             .fold(0.0, f64::max)

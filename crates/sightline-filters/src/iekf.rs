@@ -122,7 +122,8 @@ where
         _ => JacobianSource::Model,
     };
     Ok(Box::new(
-        Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol).with_jacobians(source),
+        Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol)
+            .with_jacobians(source),
     ))
 }
 

@@ -94,7 +94,9 @@ where
         };
         let n = model.state_dim();
         let m = model.meas_dim();
-        let sp = rule.points(n.value()).map_err(|e| not_applicable(e.to_string()))?;
+        let sp = rule
+            .points(n.value())
+            .map_err(|e| not_applicable(e.to_string()))?;
         let factor = semidefinite_factor(&prior.cov, "prior covariance")
             .map_err(|e| not_applicable(e.to_string()))?;
         let count = sp.unit.ncols();
@@ -280,7 +282,8 @@ where
                 continue;
             }
             let mut e = deviation(i) * w.abs().sqrt();
-            cholesky_rank_one(&mut sy, &mut e, w < 0.0, "innovation covariance").map_err(numeric)?;
+            cholesky_rank_one(&mut sy, &mut e, w < 0.0, "innovation covariance")
+                .map_err(numeric)?;
         }
         // Cross-covariance P_xy = Σ Wᶜᵢ (χᵢ − x̂⁻)(Yᵢ − ŷ)ᵀ (missing columns are zero).
         let (n, _) = self.factor.shape_generic();
@@ -297,8 +300,7 @@ where
         };
         let mut w = cross.transpose();
         let mut weighted = residual.clone();
-        if !sy.solve_lower_triangular_mut(&mut w) || !sy.solve_lower_triangular_mut(&mut weighted)
-        {
+        if !sy.solve_lower_triangular_mut(&mut w) || !sy.solve_lower_triangular_mut(&mut weighted) {
             return Err(numeric(singular));
         }
         let mut factor = self.factor.clone();
