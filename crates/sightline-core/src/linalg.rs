@@ -49,9 +49,10 @@ pub fn ensure_finite<'a>(
 /// Lower-triangular `L` with `L Lᵀ = A` for a symmetric positive *semi*-definite `A`.
 ///
 /// The Cholesky–Banachiewicz recursion (Golub & Van Loan, *Matrix Computations*, 4th ed., 2013,
-/// Alg. 4.2.1) with zero pivots allowed: a pivot within `16·n·ε·max|Aᵢᵢ|` of zero gives a zero
-/// column, as it must for a semi-definite matrix (whose Schur complement then has a zero column
-/// too, up to rounding — checked by Cauchy–Schwarz, |aᵢⱼ|² ≤ aᵢᵢ aⱼⱼ). Process noise of a plant
+/// Alg. 4.2.1) with zero pivots allowed: a pivot within `16·n·ε·Aⱼⱼ` of zero (the rounding
+/// level of its own column) gives a zero column, as it must for a semi-definite matrix (whose
+/// Schur complement then has a zero column too, up to rounding — checked by Cauchy–Schwarz,
+/// |aᵢⱼ|² ≤ aᵢᵢ aⱼⱼ). Process noise of a plant
 /// with noise-free states (Q = 0 for a random constant) is semi-definite, so square-root filters
 /// need this rather than a strict Cholesky factorisation. Does not allocate for static sizes.
 ///
@@ -73,11 +74,11 @@ where
     ensure_finite(a.iter(), quantity)?;
     let (dim, _) = a.shape_generic();
     let n = dim.value();
-    let scale = (0..n).map(|i| a[(i, i)].abs()).fold(0.0, f64::max);
-    let tol = 16.0 * n as f64 * f64::EPSILON * scale;
+    let rounding = 16.0 * n as f64 * f64::EPSILON;
     let not_pd = NumericError::NotPositiveDefinite { quantity };
     let mut l = OMatrix::<f64, N, N>::zeros_generic(dim, dim);
     for j in 0..n {
+        let tol = rounding * a[(j, j)].abs();
         let mut pivot = a[(j, j)];
         for k in 0..j {
             pivot -= l[(j, k)] * l[(j, k)];
@@ -95,7 +96,7 @@ where
             }
             if zero_pivot {
                 // Semi-definite: the remaining entries of this column are rounding noise.
-                if v.abs() > (tol * scale).sqrt() * 16.0 {
+                if v.abs() > 16.0 * (tol * a[(i, i)].abs()).sqrt() {
                     return Err(not_pd);
                 }
             } else {
@@ -304,6 +305,10 @@ mod tests {
         assert!((l * l.transpose() - q).abs().max() < 1e-12);
         let strict = semidefinite_factor(&Matrix4::<f64>::identity(), "Q").unwrap();
         assert_eq!(strict, Matrix4::identity());
+        // Tolerances are per column: a tiny variance next to a huge one is kept, not zeroed.
+        let wide = Matrix4::from_diagonal(&Vector4::new(1e6, 1e-12, 1.0, 0.0));
+        let l = semidefinite_factor(&wide, "Q").unwrap();
+        assert!((l[(1, 1)] - 1e-6).abs() < 1e-20 && l[(3, 3)] == 0.0);
         let mut indefinite = Matrix4::<f64>::identity();
         indefinite[(3, 3)] = -1e-3;
         assert!(semidefinite_factor(&indefinite, "Q").is_err());

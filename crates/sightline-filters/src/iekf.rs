@@ -15,7 +15,7 @@
 //! ‖xᵢ₊₁ − xᵢ‖_{P⁻¹} = √((xᵢ₊₁ − xᵢ)ᵀ P⁻¹ (xᵢ₊₁ − xᵢ)) ≤ `tol` (dimensionless: a Mahalanobis
 //! distance, so one tolerance suits every plant's units), or after `iterations` linearisations.
 //! The posterior is then the Kalman update linearised at the last iterate xᵢ: mean xᵢ₊₁ and the
-//! Joseph-form covariance with Kᵢ, Hᵢ (Bell & Cathey, eq. for Pᵢ). `iterations=1` is exactly
+//! Joseph-form covariance with Kᵢ, Hᵢ (as in Bell & Cathey). `iterations=1` is exactly
 //! the EKF; on an affine measurement the second linearisation reproduces the first, so the
 //! filter stops after two with the Kalman filter's answer. Iterates are moved onto the plant's
 //! feasible set ([`Model::project`]) so that h is never evaluated outside its domain. The

@@ -30,8 +30,9 @@
 //! their rows of the measurement stack are blanked and R's row and column become the identity's,
 //! so S_y is block-diagonal with an identity block and the gain has zero columns for them.
 //!
-//! Mathematically the filter equals `ukf` with the same options; it keeps the covariance
-//! positive semi-definite by construction and halves the working precision needed.
+//! Mathematically the filter equals `ukf` with the same options. It keeps the covariance
+//! positive semi-definite by construction, and the factor's condition number is the square root
+//! of the covariance's, which is what makes square-root forms robust in finite precision.
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use sightline_core::linalg::{
