@@ -8,17 +8,21 @@
 mod belief;
 pub mod ekf;
 pub mod filter;
+pub mod iekf;
 pub mod kf;
 pub mod linearise;
 pub mod registry;
 pub mod sigma_point;
 pub mod spec;
+pub mod srukf;
 mod update;
 
 pub use ekf::Ekf;
 pub use filter::{Diagnostics, Filter, FilterError, Innovation};
+pub use iekf::Iekf;
 pub use kf::{Gain, Kf};
 pub use linearise::JacobianSource;
 pub use registry::{KINDS, KindInfo, build, default_kinds};
 pub use sigma_point::SigmaPointFilter;
 pub use spec::{FilterSpec, OptionInfo, Options, SpecError};
+pub use srukf::SquareRootUkf;
