@@ -210,7 +210,10 @@ where
     let nd = model.state_dim();
     let n = nd.value();
     let input_dim = model.input_dim();
-    (cloud.par_chunks_mut(n * BLOCK), partials.par_chunks_mut(stride))
+    (
+        cloud.par_chunks_mut(n * BLOCK),
+        partials.par_chunks_mut(stride),
+    )
         .into_par_iter()
         .enumerate()
         .with_min_len(min_blocks_per_job())

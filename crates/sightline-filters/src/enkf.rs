@@ -342,15 +342,21 @@ where
                     z.copy_from_slice(model.measure(&vector(nd, x), &u, t).as_slice());
                 }
             });
-        ensure_finite(self.predicted_meas.iter(), "predicted measurement of a member")
-            .map_err(|e| self.tag.numeric(e))?;
+        ensure_finite(
+            self.predicted_meas.iter(),
+            "predicted measurement of a member",
+        )
+        .map_err(|e| self.tag.numeric(e))?;
         let predicted = model.measurement_mean(&self.predicted_meas, &self.equal);
 
         // Sample cross- and measurement covariances, per block then in block order.
         let x_mean = self.mean.as_slice();
         let z_mean = predicted.as_slice();
         let meas = self.predicted_meas.as_slice();
-        (members.par_chunks(n * BLOCK), self.partials.par_chunks_mut(self.stride))
+        (
+            members.par_chunks(n * BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
             .into_par_iter()
             .enumerate()
             .with_min_len(min_blocks_per_job())
@@ -362,7 +368,8 @@ where
                 for (k, x) in xs.chunks_exact(n).enumerate() {
                     let i = b * BLOCK + k;
                     let d = model.state_residual(&vector(nd, x), &x_mean);
-                    let e = model.measurement_residual(&vector(md, &meas[i * m..(i + 1) * m]), &z_mean);
+                    let e =
+                        model.measurement_residual(&vector(md, &meas[i * m..(i + 1) * m]), &z_mean);
                     cross.ger(1.0, &d, &e, 1.0);
                     szz.ger(1.0, &e, &e, 1.0);
                 }
@@ -406,9 +413,8 @@ where
             .with_min_len(min_blocks_per_job())
             .for_each(|(b, (xs, zs))| {
                 let mut rng = stream(seed, &[purpose::PERTURB, step, b as u64]);
-                let gain = OMatrix::<f64, M::State, M::Meas>::from_column_slice_generic(
-                    nd, md, gain_s,
-                );
+                let gain =
+                    OMatrix::<f64, M::State, M::Meas>::from_column_slice_generic(nd, md, gain_s);
                 let r_factor = square(md, r_factor_s);
                 let y = vector(md, ys);
                 for (x, z) in xs.chunks_exact_mut(n).zip(zs.chunks_exact(m)) {

@@ -401,13 +401,22 @@ where
     /// renormalises. Fails on collapse.
     fn discard_lost(&mut self) -> Result<(), FilterError> {
         let n = self.model.state_dim().value();
-        for (i, x) in self.particles.as_mut_slice().chunks_exact_mut(n).enumerate() {
+        for (i, x) in self
+            .particles
+            .as_mut_slice()
+            .chunks_exact_mut(n)
+            .enumerate()
+        {
             if x.iter().any(|v| v.is_nan()) {
                 x.fill(0.0);
                 self.log_weights[i] = f64::NEG_INFINITY;
             }
         }
-        let max = self.log_weights.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let max = self
+            .log_weights
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
         if max == f64::NEG_INFINITY {
             return Err(self.collapse());
         }
@@ -428,8 +437,8 @@ where
         let mut masked = r.clone();
         let mut unused = y.map(|_| 0.0);
         mask_missing::<M::State, M::Meas>(y, &mut unused, &mut masked, None);
-        let chol = cholesky(&masked, "measurement noise covariance R")
-            .map_err(|e| self.tag.numeric(e))?;
+        let chol =
+            cholesky(&masked, "measurement noise covariance R").map_err(|e| self.tag.numeric(e))?;
         let (md, _) = r.shape_generic();
         let inverse_factor = chol
             .l()
@@ -637,7 +646,12 @@ where
     fn resample(&mut self) -> Result<(), FilterError> {
         let step = self.tag.step as u64;
         let mut rng = stream(self.seed, &[purpose::RESAMPLE, step]);
-        resample(self.config.scheme, &self.weights, &mut rng, &mut self.ancestors);
+        resample(
+            self.config.scheme,
+            &self.weights,
+            &mut rng,
+            &mut self.ancestors,
+        );
         let n = self.model.state_dim().value();
         let source = self.particles.as_slice();
         let ancestors = &self.ancestors;
@@ -678,8 +692,7 @@ where
                 let nf = n as f64;
                 let a = (4.0 / (nf + 2.0)).powf(1.0 / (nf + 4.0));
                 let h = a * count.powf(-1.0 / (nf + 4.0));
-                lower_factor(&self.cov, "particle covariance").map_err(|e| self.tag.numeric(e))?
-                    * h
+                lower_factor(&self.cov, "particle covariance").map_err(|e| self.tag.numeric(e))? * h
             }
         };
         cloud::scatter(
@@ -827,7 +840,12 @@ where
         }
         let step = self.tag.step as u64;
         let mut rng = stream(self.seed, &[purpose::AUXILIARY_SELECT, step]);
-        resample(self.config.scheme, &self.scratch, &mut rng, &mut self.ancestors);
+        resample(
+            self.config.scheme,
+            &self.scratch,
+            &mut rng,
+            &mut self.ancestors,
+        );
         // Second-stage weights start at −ln p(y | μ_a) = −(log λ̃_a − ln w̄_a).
         for (i, &a) in self.ancestors.iter().enumerate() {
             self.weights[i] = self.log_weights[a] - self.scratch_log[a];
@@ -856,7 +874,12 @@ where
         .map_err(|e| self.tag.numeric(e))?;
         if lost > 0 {
             let n = self.model.state_dim().value();
-            for (i, x) in self.particles.as_mut_slice().chunks_exact_mut(n).enumerate() {
+            for (i, x) in self
+                .particles
+                .as_mut_slice()
+                .chunks_exact_mut(n)
+                .enumerate()
+            {
                 if x.iter().any(|v| v.is_nan()) {
                     x.fill(0.0);
                     self.log_weights[i] = f64::NEG_INFINITY;

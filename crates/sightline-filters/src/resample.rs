@@ -315,7 +315,12 @@ mod tests {
         let mut rng = stream(4, &[]);
         // Scaling the weights does not change a systematic draw from the same stream.
         let mut a2 = [9usize; 5];
-        resample(Scheme::Systematic, &[1.0, 3.0], &mut rng.clone(), &mut ancestors);
+        resample(
+            Scheme::Systematic,
+            &[1.0, 3.0],
+            &mut rng.clone(),
+            &mut ancestors,
+        );
         resample(Scheme::Systematic, &[0.25, 0.75], &mut rng, &mut a2);
         assert_eq!(ancestors, a2);
         // One positive weight takes every offspring.
@@ -324,7 +329,12 @@ mod tests {
             assert_eq!(ancestors, [2; 5], "{scheme:?}");
         }
         // Unusable weights do not panic.
-        resample(Scheme::Multinomial, &[f64::NAN, 1.0], &mut rng, &mut ancestors);
+        resample(
+            Scheme::Multinomial,
+            &[f64::NAN, 1.0],
+            &mut rng,
+            &mut ancestors,
+        );
         resample(Scheme::Multinomial, &[], &mut rng, &mut ancestors);
         assert_eq!(ancestors, [0; 5]);
         assert_eq!(Scheme::from_name("Residual"), Some(Scheme::Residual));
