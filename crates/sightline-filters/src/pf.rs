@@ -268,28 +268,53 @@ impl<M: Model> ParticleFilter<M>
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
-    /// A particle filter with the cloud drawn from `prior` (stream `(seed, initial)`).
+    /// A particle filter labelled `label` with the cloud drawn from `prior` (stream
+    /// `(seed, initial)`).
     ///
-    /// Fails if the prior covariance is not positive semi-definite or the config is out of
-    /// range (fewer than 2 particles, `ess` outside [0, 1], a negative roughening constant).
+    /// Fails, naming the setting, if the config is out of range (fewer than 2 particles, `ess`
+    /// outside [0, 1], a negative roughening constant), if the plant has no state or no
+    /// measurement, or if the prior covariance is not positive semi-definite.
     pub fn new(
         model: M,
         prior: Gaussian<M::State>,
         config: PfConfig,
         label: &str,
         seed: u64,
-    ) -> Result<Self, NumericError> {
+    ) -> Result<Self, SpecError> {
         let nd = model.state_dim();
         let md = model.meas_dim();
         let (n, m) = (nd.value(), md.value());
         let count = config.particles;
-        if count < 2
-            || !(0.0..=1.0).contains(&config.ess)
-            || matches!(config.jitter, Jitter::Roughening(k) if !(k >= 0.0 && k.is_finite()))
-        {
-            return Err(NumericError::NonFinite {
-                quantity: "particle filter settings (need N ≥ 2, 0 ≤ ess ≤ 1, roughening ≥ 0)",
-            });
+        let bad = |key: &str, value: String, expected: &str| SpecError::BadValue {
+            spec: label.to_string(),
+            key: key.to_string(),
+            value,
+            expected: expected.to_string(),
+        };
+        if count < 2 {
+            return Err(bad("particles", count.to_string(), "at least 2"));
+        }
+        if !(0.0..=1.0).contains(&config.ess) {
+            return Err(bad(
+                "ess",
+                config.ess.to_string(),
+                "a fraction of N from 0 to 1",
+            ));
+        }
+        if let Jitter::Roughening(k) = config.jitter {
+            if !(k.is_finite() && k >= 0.0) {
+                return Err(bad("roughening", k.to_string(), "a number >= 0"));
+            }
+        }
+        let not_applicable = |reason: String| SpecError::NotApplicable {
+            spec: label.to_string(),
+            reason,
+        };
+        if n == 0 || m == 0 {
+            return Err(not_applicable(format!(
+                "the particle filter needs at least one state and one measurement; '{}' has {n} and {m}",
+                model.name()
+            )));
         }
         let blocks = block_count(count);
         let stride = n * n + m * m + 2 * n + 3;
@@ -298,7 +323,8 @@ where
         } else {
             0
         };
-        let factor = lower_factor(&prior.cov, "prior covariance")?;
+        let factor = lower_factor(&prior.cov, "prior covariance")
+            .map_err(|e| not_applicable(format!("cannot draw the initial particles: {e}")))?;
         let mut pf = ParticleFilter {
             tag: Tag::new(label),
             config,
@@ -338,7 +364,7 @@ where
             0,
         );
         pf.estimate()
-            .map_err(|_| NumericError::NonFinite { quantity: "prior" })?;
+            .map_err(|e| not_applicable(format!("the initial particles: {e}")))?;
         Ok(pf)
     }
 
@@ -985,12 +1011,7 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
     let config = config_from_spec(spec)?;
-    let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed).map_err(
-        |e| SpecError::NotApplicable {
-            spec: spec.label.clone(),
-            reason: format!("cannot draw the initial particles: {e}"),
-        },
-    )?;
+    let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)?;
     Ok(Box::new(pf))
 }
 
