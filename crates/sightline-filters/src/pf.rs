@@ -861,9 +861,11 @@ where
         // Innovation statistics from the predicted cloud (its weights are discarded).
         self.scratch_log.copy_from_slice(&self.log_weights);
         let (max, valid_sum) = self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
-        if max.is_finite() {
-            self.innovation_stats(y, present, valid_sum, &lik.r)?;
+        if !max.is_finite() {
+            // The predicted cloud itself collapses: the bootstrap step owns the remedy.
+            return self.sir_update(y, present, u, t, lik);
         }
+        self.innovation_stats(y, present, valid_sum, &lik.r)?;
         // First stage: λⱼ ∝ w̄ⱼ p(y | μⱼ).
         self.scratch_log.copy_from_slice(&self.log_weights);
         let (max_first, _) = self.weigh(Source::Anchors, Target::Scratch, ys, u, t, lik);
