@@ -1,0 +1,384 @@
+//! The verdict: a few reasoned findings of one run — which filter was most accurate, which were
+//! statistically inconsistent (over- or under-confident), what each cost — stated as findings
+//! of this run, not as a universal ranking.
+//!
+//! Consistency is judged against the 95 % χ² band of the average statistic (Bar-Shalom, Li &
+//! Kirubarajan 2001, §5.4): an average NEES (or NIS) above the band means the filter's covariance
+//! understates its actual error (over-confident); below it, overstates it (under-confident).
+//! Without truth the judgement rests on the NIS, the innovation whiteness (Mehra 1970) and the
+//! log-likelihood.
+
+use crate::summary::{FilterSummary, Status};
+
+/// Accuracy within this relative margin of the best counts as "as accurate" (our own choice).
+const CLOSE: f64 = 0.05;
+
+/// A number with `digits` significant digits, in plain or scientific notation as fits.
+pub fn sig(v: f64, digits: usize) -> String {
+    if !v.is_finite() {
+        return format!("{v}");
+    }
+    if v == 0.0 {
+        return "0".into();
+    }
+    let magnitude = v.abs().log10().floor() as i32;
+    if !(-3..6).contains(&magnitude) {
+        return format!("{:.*e}", digits.saturating_sub(1), v);
+    }
+    let decimals = (digits as i32 - 1 - magnitude).max(0) as usize;
+    format!("{v:.decimals$}")
+}
+
+/// Seconds as µs/ms/s with three significant digits.
+pub fn duration(seconds: f64) -> String {
+    if seconds < 1e-3 {
+        format!("{} µs", sig(seconds * 1e6, 3))
+    } else if seconds < 1.0 {
+        format!("{} ms", sig(seconds * 1e3, 3))
+    } else {
+        format!("{} s", sig(seconds, 3))
+    }
+}
+
+/// How a filter's average statistic sits against its band.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Consistency {
+    /// Inside the band.
+    Consistent,
+    /// Above: the covariance understates the error.
+    OverConfident,
+    /// Below: the covariance overstates the error.
+    UnderConfident,
+    /// No statistic to judge.
+    Unknown,
+}
+
+fn judge(value: Option<f64>, band: Option<[f64; 2]>) -> Consistency {
+    match (value, band) {
+        (Some(v), Some([_, hi])) if v > hi => Consistency::OverConfident,
+        (Some(v), Some([lo, _])) if v < lo => Consistency::UnderConfident,
+        (Some(_), Some(_)) => Consistency::Consistent,
+        _ => Consistency::Unknown,
+    }
+}
+
+/// A filter's consistency: by NEES with truth, else by NIS.
+pub fn consistency(f: &FilterSummary, truth: bool) -> Consistency {
+    if truth {
+        judge(f.anees, f.anees_band)
+    } else {
+        judge(f.anis, f.anis_band)
+    }
+}
+
+fn names(list: &[&FilterSummary]) -> String {
+    list.iter()
+        .map(|f| f.label.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// The verdict text for a set of filter results. `truth` says whether accuracy was measurable;
+/// `runs` is the Monte Carlo run count (`None` for a single dataset); `steps` the rows per
+/// dataset.
+pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps: u64) -> String {
+    let mut lines: Vec<String> = Vec::new();
+    let ok: Vec<&FilterSummary> = filters.iter().filter(|f| f.status == Status::Ok).collect();
+    for f in filters.iter().filter(|f| f.status == Status::Failed) {
+        lines.push(format!(
+            "{} failed: {}.",
+            f.label,
+            f.error.as_deref().unwrap_or("no error recorded")
+        ));
+    }
+    for f in ok.iter().filter(|f| f.failures.unwrap_or(0) > 0) {
+        lines.push(format!(
+            "{} failed in {} of {} runs ({}); its averages cover the other runs.",
+            f.label,
+            f.failures.unwrap_or(0),
+            f.failures.unwrap_or(0) + f.runs.unwrap_or(0),
+            f.error.as_deref().unwrap_or("no error recorded")
+        ));
+    }
+    if ok.is_empty() {
+        lines.push("No filter ran to the end on this data.".into());
+        return lines.join("\n");
+    }
+    let statistic = if truth { "ANEES" } else { "ANIS" };
+    let value = |f: &FilterSummary| if truth { f.anees } else { f.anis };
+    let band = |f: &FilterSummary| if truth { f.anees_band } else { f.anis_band };
+
+    // Accuracy.
+    let mut best_accuracy: Option<&FilterSummary> = None;
+    if truth {
+        best_accuracy = ok
+            .iter()
+            .copied()
+            .filter(|f| f.rmse_all.is_some())
+            .min_by(|a, b| a.rmse_all.partial_cmp(&b.rmse_all).unwrap_or(std::cmp::Ordering::Equal));
+        if let Some(best) = best_accuracy {
+            let r = best.rmse_all.unwrap_or(f64::NAN);
+            let close: Vec<&FilterSummary> = ok
+                .iter()
+                .copied()
+                .filter(|f| f.label != best.label)
+                .filter(|f| f.rmse_all.is_some_and(|x| x <= r * (1.0 + CLOSE)))
+                .collect();
+            let mut line = format!("Most accurate: {} (rmse_all {}).", best.label, sig(r, 3));
+            if !close.is_empty() {
+                line.push_str(&format!(
+                    " Within {:.0} % of it: {}.",
+                    CLOSE * 100.0,
+                    names(&close)
+                ));
+            }
+            lines.push(line);
+        }
+    }
+
+    // Consistency.
+    let mut consistent = Vec::new();
+    let mut over = Vec::new();
+    let mut under = Vec::new();
+    for f in &ok {
+        match consistency(f, truth) {
+            Consistency::Consistent => consistent.push(*f),
+            Consistency::OverConfident => over.push(*f),
+            Consistency::UnderConfident => under.push(*f),
+            Consistency::Unknown => {}
+        }
+    }
+    let describe = |f: &FilterSummary| {
+        let b = band(f).unwrap_or([f64::NAN; 2]);
+        format!(
+            "{} ({statistic} {} vs band [{}, {}])",
+            f.label,
+            sig(value(f).unwrap_or(f64::NAN), 3),
+            sig(b[0], 3),
+            sig(b[1], 3)
+        )
+    };
+    if !consistent.is_empty() {
+        lines.push(format!(
+            "Consistent ({statistic} inside its 95 % band): {}.",
+            names(&consistent)
+        ));
+    }
+    if !over.is_empty() {
+        lines.push(format!(
+            "Over-confident (covariance smaller than the actual error): {}.",
+            over.iter().map(|f| describe(f)).collect::<Vec<_>>().join(", ")
+        ));
+    }
+    if !under.is_empty() {
+        lines.push(format!(
+            "Under-confident (covariance larger than the actual error): {}.",
+            under.iter().map(|f| describe(f)).collect::<Vec<_>>().join(", ")
+        ));
+    }
+
+    // Whiteness (single dataset).
+    if runs.is_none() {
+        let coloured: Vec<&FilterSummary> = ok
+            .iter()
+            .copied()
+            .filter(|f| f.whiteness.as_ref().and_then(|w| w.white) == Some(false))
+            .collect();
+        let white: Vec<&FilterSummary> = ok
+            .iter()
+            .copied()
+            .filter(|f| f.whiteness.as_ref().and_then(|w| w.white) == Some(true))
+            .collect();
+        if !coloured.is_empty() {
+            lines.push(format!(
+                "Innovations not white (more autocorrelation outside ±1.96/√N than chance \
+                 allows): {} — the model or noise settings miss something these filters see.",
+                coloured
+                    .iter()
+                    .map(|f| format!(
+                        "{} ({} % outside)",
+                        f.label,
+                        sig(
+                            100.0
+                                * f.whiteness
+                                    .as_ref()
+                                    .and_then(|w| w.outside_share)
+                                    .unwrap_or(f64::NAN),
+                            2
+                        )
+                    ))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        } else if !white.is_empty() && !truth {
+            lines.push(format!("Innovations white: {}.", names(&white)));
+        }
+    }
+
+    // Predictive fit.
+    let best_fit = ok
+        .iter()
+        .copied()
+        .filter(|f| f.log_likelihood.is_some())
+        .max_by(|a, b| {
+            a.log_likelihood
+                .partial_cmp(&b.log_likelihood)
+                .unwrap_or(std::cmp::Ordering::Equal)
+        });
+    if let Some(f) = best_fit {
+        if ok.len() > 1 {
+            lines.push(format!(
+                "Best predictive fit (highest log-likelihood{}): {} ({}).",
+                if runs.is_some() { ", mean over runs" } else { "" },
+                f.label,
+                sig(f.log_likelihood.unwrap_or(f64::NAN), 6)
+            ));
+        }
+    }
+
+    // Cost.
+    lines.push(format!(
+        "Cost per step: {}.",
+        ok.iter()
+            .map(|f| format!("{} {}", f.label, duration(f.seconds_per_step)))
+            .collect::<Vec<_>>()
+            .join(", ")
+    ));
+
+    // Recommendation.
+    let pick = if truth {
+        consistent
+            .iter()
+            .copied()
+            .filter(|f| f.rmse_all.is_some())
+            .min_by(|a, b| a.rmse_all.partial_cmp(&b.rmse_all).unwrap_or(std::cmp::Ordering::Equal))
+    } else {
+        consistent
+            .iter()
+            .copied()
+            .filter(|f| f.whiteness.as_ref().and_then(|w| w.white) != Some(false))
+            .max_by(|a, b| {
+                a.log_likelihood
+                    .partial_cmp(&b.log_likelihood)
+                    .unwrap_or(std::cmp::Ordering::Equal)
+            })
+    };
+    match pick {
+        Some(p) => {
+            let why = if truth {
+                "the most accurate of the consistent filters"
+            } else {
+                "the best predictive fit among the filters with consistent, white innovations"
+            };
+            let mut line = format!("On this run, {} is {why}", p.label);
+            let cheaper = consistent
+                .iter()
+                .copied()
+                .filter(|f| f.label != p.label && f.seconds_per_step < 0.5 * p.seconds_per_step)
+                .filter(|f| match (truth, f.rmse_all, p.rmse_all) {
+                    (true, Some(a), Some(b)) => a <= b * (1.0 + CLOSE),
+                    _ => false,
+                })
+                .min_by(|a, b| {
+                    a.seconds_per_step
+                        .partial_cmp(&b.seconds_per_step)
+                        .unwrap_or(std::cmp::Ordering::Equal)
+                });
+            if let Some(c) = cheaper {
+                line.push_str(&format!(
+                    "; {} is within {:.0} % of its accuracy at {}× lower cost",
+                    c.label,
+                    CLOSE * 100.0,
+                    sig(p.seconds_per_step / c.seconds_per_step.max(1e-12), 2)
+                ));
+            }
+            line.push('.');
+            lines.push(line);
+        }
+        None => {
+            let fallback = best_accuracy.or(best_fit);
+            lines.push(match fallback {
+                Some(f) => format!(
+                    "No filter was consistent on this run; {} did best — check the noise \
+                     settings (q, r) before trusting any covariance.",
+                    f.label
+                ),
+                None => "No filter could be judged on this run.".into(),
+            });
+        }
+    }
+    lines.push(match runs {
+        Some(m) => format!(
+            "These are findings of this campaign ({m} runs × {steps} steps), not a universal ranking."
+        ),
+        None => format!("These are findings of this run ({steps} steps), not a universal ranking."),
+    });
+    lines.join("\n")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::summary::DiagnosticsSummary;
+
+    fn filter(label: &str, rmse: f64, anees: f64, cost: f64) -> FilterSummary {
+        FilterSummary {
+            label: label.into(),
+            kind: label.into(),
+            status: Status::Ok,
+            error: None,
+            rmse: None,
+            rmse_all: Some(rmse),
+            anees: Some(anees),
+            nees_in_band: Some(0.95),
+            anis: Some(1.0),
+            nis_in_band: Some(0.95),
+            log_likelihood: Some(-rmse),
+            seconds_per_step: cost,
+            smoothed_rmse_all: None,
+            anees_band: Some([1.8, 2.2]),
+            anis_band: Some([0.9, 1.1]),
+            whiteness: None,
+            diagnostics: DiagnosticsSummary::default(),
+            runs: None,
+            failures: None,
+            rmse_all_spread: None,
+            rmse_all_run_mean: None,
+        }
+    }
+
+    #[test]
+    fn names_the_accurate_the_inconsistent_and_the_cost() {
+        let mut failed = filter("pf", 0.0, 0.0, 1e-4);
+        failed.status = Status::Failed;
+        failed.error = Some("particle collapse at step 3".into());
+        let v = verdict(
+            &[
+                filter("ukf", 0.100, 2.0, 2e-6),
+                filter("ekf", 0.102, 2.1, 5e-7),
+                filter("ckf", 0.2, 5.0, 2e-6),
+                filter("enkf", 0.3, 1.0, 1e-5),
+                failed,
+            ],
+            true,
+            None,
+            500,
+        );
+        assert!(v.contains("Most accurate: ukf"), "{v}");
+        assert!(v.contains("Within 5 % of it: ekf"), "{v}");
+        assert!(v.contains("Over-confident") && v.contains("ckf (ANEES 5.00"), "{v}");
+        assert!(v.contains("Under-confident") && v.contains("enkf"), "{v}");
+        assert!(v.contains("pf failed: particle collapse"), "{v}");
+        assert!(v.contains("ekf is within 5 % of its accuracy at 4.0× lower cost"), "{v}");
+        assert!(v.contains("not a universal ranking"), "{v}");
+    }
+
+    #[test]
+    fn formats_numbers_and_durations() {
+        assert_eq!(sig(0.012345, 3), "0.0123");
+        assert_eq!(sig(123.456, 3), "123");
+        assert_eq!(sig(1.5e-7, 2), "1.5e-7");
+        assert_eq!(duration(2.5e-6), "2.50 µs");
+        assert_eq!(duration(0.0123), "12.3 ms");
+    }
+}
