@@ -2,23 +2,32 @@
 //!
 //! One file per filter family; each builds from a spec string (`ukf:alpha=0.5`) through the
 //! [`registry`]. Gaussian filters share the belief, the masked update for missing measurement
-//! components and the Joseph-form covariance; with static plant sizes a predict+update step
+//! components and the Joseph-form covariance; the particle filter ([`pf`]) and the ensemble
+//! Kalman filter ([`enkf`]) share the block-parallel, seed-split sample clouds that make their
+//! output independent of the thread count. With static plant sizes a predict+update step
 //! performs no heap allocation.
 
 mod belief;
+mod cloud;
 pub mod ekf;
+pub mod enkf;
 pub mod filter;
 pub mod kf;
 pub mod linearise;
+pub mod pf;
 pub mod registry;
+pub mod resample;
 pub mod sigma_point;
 pub mod spec;
 mod update;
 
+pub use cloud::NoiseAt;
 pub use ekf::Ekf;
+pub use enkf::{EnkfConfig, EnsembleKalmanFilter};
 pub use filter::{Diagnostics, Filter, FilterError, Innovation};
 pub use kf::{Gain, Kf};
 pub use linearise::JacobianSource;
+pub use pf::{ParticleFilter, PfConfig};
 pub use registry::{KINDS, KindInfo, build, default_kinds};
 pub use sigma_point::SigmaPointFilter;
 pub use spec::{FilterSpec, OptionInfo, Options, SpecError};

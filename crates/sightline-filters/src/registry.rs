@@ -60,6 +60,8 @@ registry! {
     crate::sigma_point::UKF => crate::sigma_point::build_ukf,
     crate::sigma_point::CKF => crate::sigma_point::build_ckf,
     crate::sigma_point::GHKF => crate::sigma_point::build_ghkf,
+    crate::pf::INFO => crate::pf::build,
+    crate::enkf::INFO => crate::enkf::build,
 }
 
 /// The kinds `compare` runs when no `-f` is given: every kind that applies to the plant.

@@ -1,0 +1,1130 @@
+//! `pf`: the sequential importance resampling particle filter with the transition prior as
+//! proposal (the bootstrap filter of Gordon, Salmond & Smith, IEE Proc. F 140(2), 1993), and its
+//! auxiliary variant (Pitt & Shephard, JASA 94(446), 1999).
+//!
+//! **Step.** Predict draws every particle from the transition density,
+//! xᵢ ← f(xᵢ) + wᵢ, wᵢ ~ N(0, Q), and projects it onto the feasible set. Update multiplies each
+//! weight by the Gaussian measurement likelihood
+//! p(y | xᵢ) = N(r(y, h(xᵢ)); 0, R), r the model's `measurement_residual` (missing components of
+//! `y` are left out: the density is over the present components only). Weights are kept as
+//! logarithms and normalised by log-sum-exp, so nothing underflows even with 10⁶ particles and a
+//! sharp likelihood. When the effective sample size 1/Σwᵢ² falls below `ess`·N the cloud is
+//! resampled ([`crate::resample`]) into a second buffer and the buffers are swapped.
+//!
+//! **Outputs.** The estimate is the weighted mean (the model's `state_mean` hook with the
+//! particle weights) and the weighted covariance Σwᵢdᵢdᵢᵀ, dᵢ the model's `state_residual`,
+//! both taken after weighting and before resampling. The log-likelihood increment is
+//! ln Σᵢ w̄ᵢ p(y | xᵢ) with w̄ the normalised weights before the update — the log of the mean
+//! unnormalised weight when the cloud is equally weighted, an unbiased estimate of the
+//! predictive likelihood p(y(k) | y(0..k)) (Del Moral, *Feynman–Kac Formulae*, 2004, §7.4.2).
+//! The innovation is y − ŷ with ŷ the predicted measurement mean (the `measurement_mean` hook)
+//! and S = Σ w̄ᵢ eᵢeᵢᵀ + R, for NIS.
+//!
+//! **Options.** `particles` (N), `resample` (scheme), `ess` (threshold as a fraction of N; 1
+//! resamples at every update, 0 never), `roughening=K` (after resampling add independent
+//! Gaussian jitter of standard deviation K·Eⱼ·N^(−1/n) to state j, Eⱼ the spread max − min of
+//! that state over the cloud: Gordon et al. 1993, §4), `regularise=on` (after resampling add
+//! h·D·ε with D Dᵀ the weighted covariance and the Gaussian-kernel bandwidth
+//! h = (4/(n+2))^(1/(n+4)) N^(−1/(n+4)): the post-regularised filter of Musso, Oudjane & Le Gland,
+//! in *Sequential Monte Carlo Methods in Practice*, 2001, §12.2), `variant=auxiliary`, `redraw`
+//! and `noise` ([`NoiseAt`]).
+//!
+//! **Auxiliary variant.** At an update, the first stage weighs the look-ahead points
+//! μᵢ = f(xᵢ(k−1)) by λᵢ ∝ w̄ᵢ p(y | μᵢ), selects N ancestors aᵢ by λ with the chosen scheme and
+//! propagates them afresh, xᵢ = μ_{aᵢ} + wᵢ; the second-stage weights are
+//! p(y | xᵢ)/p(y | μ_{aᵢ}). The likelihood estimate is
+//! [Σⱼ w̄ⱼ p(y | μⱼ)]·[N⁻¹ Σᵢ p(y | xᵢ)/p(y | μ_{aᵢ})] (Pitt & Shephard 1999, §3.2). Without a
+//! prediction before the update (the first row) the step is the bootstrap one.
+//!
+//! **Collapse.** A particle whose state leaves the finite range gets weight zero. If every
+//! weight is zero or NaN (e.g. a measurement so far out that every log-likelihood is −∞) the
+//! step fails with [`FilterError::Collapse`] naming it. With `redraw=on` the cloud is instead
+//! re-drawn from the predicted Gaussian N(m⁻, P⁻) (the weighted moments before the update) and
+//! weighed again; if that also collapses the measurement is skipped (innovation `None`,
+//! log-likelihood increment 0). Each re-draw is counted in [`Diagnostics::redraws`].
+//!
+//! **Parallel and reproducible.** Propagation, weighting and every reduction run over blocks of
+//! 1024 particles with rayon; the random stream of each block is derived from (seed, step,
+//! block) and partial sums are combined in block order, so the output is bit-identical for any
+//! thread count. Resampling picks ancestors sequentially (O(N)) and copies them in parallel. All
+//! buffers are allocated at construction; with static plant sizes on a one-thread pool a step
+//! performs no heap allocation.
+
+use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
+use rayon::prelude::*;
+use sightline_core::linalg::{cholesky, ensure_finite};
+use sightline_core::rng::stream;
+use sightline_core::{Alloc, Gaussian, Model, NumericError};
+
+use crate::cloud::{
+    self, BLOCK, NoiseAt, Propagation, Weights, block_count, lower_factor, min_blocks_per_job,
+    purpose, vector,
+};
+use crate::filter::{Diagnostics, Filter, FilterError, Innovation, Tag};
+use crate::registry::KindInfo;
+use crate::resample::{Scheme, resample};
+use crate::spec::{FilterSpec, OptionInfo, SpecError};
+use crate::update::{InnovationStore, LN_2PI, mask_missing, present_mask};
+
+/// Registry entry for `pf`.
+pub const INFO: KindInfo = KindInfo {
+    kind: "pf",
+    about: "particle filter: sequential importance resampling, transition prior as proposal",
+    options: &[
+        OptionInfo {
+            key: "particles",
+            default: "1000",
+            about: "number of particles N",
+        },
+        OptionInfo {
+            key: "resample",
+            default: "systematic",
+            about: "systematic | stratified | multinomial | residual",
+        },
+        OptionInfo {
+            key: "ess",
+            default: "0.5",
+            about: "resample when the effective sample size < ess·N (0..1)",
+        },
+        OptionInfo {
+            key: "roughening",
+            default: "0",
+            about: "jitter after resampling, sd K·spread·N^(-1/n) (Gordon et al. 1993); 0 = off",
+        },
+        OptionInfo {
+            key: "regularise",
+            default: "off",
+            about: "on: Gaussian-kernel jitter after resampling (Musso et al. 2001)",
+        },
+        OptionInfo {
+            key: "variant",
+            default: "sir",
+            about: "sir | auxiliary (Pitt & Shephard 1999)",
+        },
+        OptionInfo {
+            key: "redraw",
+            default: "off",
+            about: "on: re-draw from the predicted Gaussian when every weight vanishes",
+        },
+        OptionInfo {
+            key: "noise",
+            default: "mean",
+            about: "process noise Q at the cloud's mean | each particle",
+        },
+    ],
+    linear_only: false,
+};
+
+/// Which particle filter runs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Variant {
+    /// Sequential importance resampling with the transition prior (`variant=sir`).
+    Sir,
+    /// The auxiliary particle filter (`variant=auxiliary`).
+    Auxiliary,
+}
+
+/// What is added to the particles after resampling, against sample impoverishment.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Jitter {
+    /// Nothing.
+    None,
+    /// Roughening with tuning constant K (Gordon et al. 1993).
+    Roughening(f64),
+    /// Post-regularisation with the optimal Gaussian kernel (Musso et al. 2001).
+    Regularised,
+}
+
+/// Settings of a [`ParticleFilter`]; `Default` gives the spec defaults.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PfConfig {
+    /// Number of particles N (at least 2).
+    pub particles: usize,
+    /// Resampling scheme.
+    pub scheme: Scheme,
+    /// Resample when the effective sample size is below `ess`·N.
+    pub ess: f64,
+    /// Jitter after resampling.
+    pub jitter: Jitter,
+    /// Bootstrap or auxiliary.
+    pub variant: Variant,
+    /// Re-draw from the predicted Gaussian instead of failing on collapse.
+    pub redraw: bool,
+    /// Where Q is evaluated.
+    pub noise: NoiseAt,
+}
+
+impl Default for PfConfig {
+    fn default() -> Self {
+        PfConfig {
+            particles: 1000,
+            scheme: Scheme::Systematic,
+            ess: 0.5,
+            jitter: Jitter::None,
+            variant: Variant::Sir,
+            redraw: false,
+            noise: NoiseAt::Mean,
+        }
+    }
+}
+
+/// The Gaussian measurement likelihood of one update over the present components.
+struct Likelihood<M: Dim>
+where
+    DefaultAllocator: nalgebra::allocator::Allocator<M, M>,
+{
+    /// L⁻¹ with L Lᵀ = R̃, R̃ the measurement covariance with missing rows and columns replaced
+    /// by the identity's; ‖L⁻¹e‖² is then the Mahalanobis distance over the present components.
+    inverse_factor: OMatrix<f64, M, M>,
+    /// −½(ln det R_pp + p ln 2π).
+    log_norm: f64,
+    /// R itself, for the innovation covariance.
+    r: OMatrix<f64, M, M>,
+}
+
+/// A particle filter over plant `M`; see the module docs.
+///
+/// ```
+/// use sightline_core::nalgebra::{Matrix1, Vector1, U1};
+/// use sightline_core::{Gaussian, Model, Real, Variable};
+/// use sightline_filters::pf::{ParticleFilter, PfConfig};
+/// use sightline_filters::Filter;
+///
+/// /// A scalar random walk seen directly.
+/// #[derive(Clone)]
+/// struct Walk;
+/// impl Model for Walk {
+///     type State = U1;
+///     type Meas = U1;
+///     type Input = U1;
+///     fn name(&self) -> &str { "walk" }
+///     fn state_dim(&self) -> U1 { U1 }
+///     fn meas_dim(&self) -> U1 { U1 }
+///     fn input_dim(&self) -> U1 { U1 }
+///     fn states(&self) -> Vec<Variable> { vec![Variable::new("x", "m")] }
+///     fn measurements(&self) -> Vec<Variable> { vec![Variable::new("x", "m")] }
+///     fn inputs(&self) -> Vec<Variable> { vec![Variable::new("unused", "-")] }
+///     fn transition<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64, _dt: f64) -> Vector1<S> { *x }
+///     fn measure<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> { *x }
+///     fn process_noise(&self, _x: &Vector1<f64>, _u: &Vector1<f64>, _t: f64, _dt: f64) -> Matrix1<f64> { Matrix1::new(0.1) }
+///     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
+///     fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
+///     fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
+///     fn dt(&self) -> f64 { 1.0 }
+/// }
+///
+/// let config = PfConfig { particles: 4000, ..PfConfig::default() };
+/// let mut pf = ParticleFilter::new(Walk, Walk.prior(), config, "pf", 7).unwrap();
+/// pf.update(&[1.0], &[0.0], 0.0).unwrap();
+/// // Conjugate Gaussian update of N(0, 1) by y = 1 with R = 1: posterior mean 0.5.
+/// assert!((pf.mean()[0] - 0.5).abs() < 0.05);
+/// ```
+#[derive(Debug, Clone)]
+pub struct ParticleFilter<M: Model>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    model: M,
+    tag: Tag,
+    config: PfConfig,
+    seed: u64,
+    /// The cloud, one particle per column.
+    particles: OMatrix<f64, M::State, Dyn>,
+    /// The resampling target, swapped with `particles`.
+    spare: OMatrix<f64, M::State, Dyn>,
+    /// Auxiliary variant: look-ahead points f(xᵢ(k−1)) (no columns otherwise).
+    anchors: OMatrix<f64, M::State, Dyn>,
+    /// Auxiliary variant: the particles the anchors came from (no columns otherwise).
+    previous: OMatrix<f64, M::State, Dyn>,
+    /// Whether `anchors` belong to the last prediction.
+    anchored: bool,
+    /// h(xᵢ) of the last weighting pass.
+    predicted_meas: OMatrix<f64, M::Meas, Dyn>,
+    log_weights: Vec<f64>,
+    /// Normalised weights exp(log_weights).
+    weights: Vec<f64>,
+    /// Per-particle scratch: prior weights of particles with a finite h(x); first-stage weights.
+    scratch: Vec<f64>,
+    /// Per-particle scratch: first-stage log-weights of the auxiliary variant.
+    scratch_log: Vec<f64>,
+    ancestors: Vec<usize>,
+    /// Per-block partial sums, `stride` values per block.
+    partials: Vec<f64>,
+    stride: usize,
+    /// Factor of Q at the mean for the last prediction.
+    q_factor: OMatrix<f64, M::State, M::State>,
+    last_input: OVector<f64, M::Input>,
+    last_t: f64,
+    last_dt: f64,
+    mean: OVector<f64, M::State>,
+    cov: OMatrix<f64, M::State, M::State>,
+    innov: InnovationStore<M::Meas>,
+    log_likelihood: f64,
+    ess: f64,
+    diagnostics: Diagnostics,
+}
+
+impl<M: Model> ParticleFilter<M>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    /// A particle filter with the cloud drawn from `prior` (stream `(seed, initial)`).
+    ///
+    /// Fails if the prior covariance is not positive semi-definite or the config is out of
+    /// range (fewer than 2 particles, `ess` outside [0, 1], a negative roughening constant).
+    pub fn new(
+        model: M,
+        prior: Gaussian<M::State>,
+        config: PfConfig,
+        label: &str,
+        seed: u64,
+    ) -> Result<Self, NumericError> {
+        let nd = model.state_dim();
+        let md = model.meas_dim();
+        let (n, m) = (nd.value(), md.value());
+        let count = config.particles;
+        if count < 2
+            || !(0.0..=1.0).contains(&config.ess)
+            || matches!(config.jitter, Jitter::Roughening(k) if !(k >= 0.0 && k.is_finite()))
+        {
+            return Err(NumericError::NonFinite {
+                quantity: "particle filter settings (need N ≥ 2, 0 ≤ ess ≤ 1, roughening ≥ 0)",
+            });
+        }
+        let blocks = block_count(count);
+        let stride = n * n + m * m + 2 * n + 3;
+        let auxiliary_columns = if config.variant == Variant::Auxiliary {
+            count
+        } else {
+            0
+        };
+        let factor = lower_factor(&prior.cov, "prior covariance")?;
+        let mut pf = ParticleFilter {
+            tag: Tag::new(label),
+            config,
+            seed,
+            particles: cloud::cloud_matrix(nd, count),
+            spare: cloud::cloud_matrix(nd, count),
+            anchors: cloud::cloud_matrix(nd, auxiliary_columns),
+            previous: cloud::cloud_matrix(nd, auxiliary_columns),
+            anchored: false,
+            predicted_meas: cloud::cloud_matrix(md, count),
+            log_weights: vec![-(count as f64).ln(); count],
+            weights: vec![1.0 / count as f64; count],
+            scratch: vec![0.0; count],
+            scratch_log: vec![0.0; count],
+            ancestors: vec![0; count],
+            partials: vec![0.0; blocks * stride],
+            stride,
+            q_factor: OMatrix::zeros_generic(nd, nd),
+            last_input: model.default_input(),
+            last_t: 0.0,
+            last_dt: 0.0,
+            mean: prior.mean.clone(),
+            cov: prior.cov.clone(),
+            innov: InnovationStore::new(md),
+            log_likelihood: 0.0,
+            ess: count as f64,
+            diagnostics: Diagnostics::default(),
+            model,
+        };
+        cloud::scatter(
+            &pf.model,
+            pf.particles.as_mut_slice(),
+            Some(prior.mean.as_slice()),
+            factor.as_slice(),
+            seed,
+            purpose::INITIAL,
+            0,
+        );
+        pf.estimate()
+            .map_err(|_| NumericError::NonFinite { quantity: "prior" })?;
+        Ok(pf)
+    }
+
+    /// The particles, one per column (state order), after the last step.
+    pub fn particles(&self) -> &OMatrix<f64, M::State, Dyn> {
+        &self.particles
+    }
+
+    /// The normalised weights of the particles.
+    pub fn weights(&self) -> &[f64] {
+        &self.weights
+    }
+
+    /// The effective sample size 1/Σwᵢ² after the last update (before any resampling).
+    pub fn effective_sample_size(&self) -> f64 {
+        self.ess
+    }
+
+    /// The settings.
+    pub fn config(&self) -> &PfConfig {
+        &self.config
+    }
+
+    fn count(&self) -> usize {
+        self.config.particles
+    }
+
+    fn collapse(&self) -> FilterError {
+        FilterError::Collapse {
+            label: self.tag.label.clone(),
+            step: self.tag.step,
+        }
+    }
+
+    fn set_uniform_weights(&mut self) {
+        let count = self.count() as f64;
+        self.log_weights.fill(-count.ln());
+        self.weights.fill(1.0 / count);
+    }
+
+    /// Weighted mean and covariance of the cloud into `mean`, `cov`.
+    fn estimate(&mut self) -> Result<(), FilterError> {
+        let mut mean = self.model.state_mean(&self.particles, &self.weights);
+        ensure_finite(mean.iter(), "particle mean").map_err(|e| self.tag.numeric(e))?;
+        self.cov = cloud::covariance(
+            &self.model,
+            self.particles.as_slice(),
+            Weights::Each(&self.weights),
+            &mean,
+            &mut self.partials,
+            self.stride,
+        );
+        ensure_finite(self.cov.iter(), "particle covariance").map_err(|e| self.tag.numeric(e))?;
+        self.model.project(&mut mean);
+        self.mean = mean;
+        Ok(())
+    }
+
+    /// Gives particles lost in a propagation (NaN states) weight zero and a zero state, and
+    /// renormalises. Fails on collapse.
+    fn discard_lost(&mut self) -> Result<(), FilterError> {
+        let n = self.model.state_dim().value();
+        for (i, x) in self
+            .particles
+            .as_mut_slice()
+            .chunks_exact_mut(n)
+            .enumerate()
+        {
+            if x.iter().any(|v| v.is_nan()) {
+                x.fill(0.0);
+                self.log_weights[i] = f64::NEG_INFINITY;
+            }
+        }
+        let max = self
+            .log_weights
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
+        if max == f64::NEG_INFINITY {
+            return Err(self.collapse());
+        }
+        let sum: f64 = self.log_weights.iter().map(|&l| (l - max).exp()).sum();
+        let log_z = max + sum.ln();
+        self.normalise(log_z);
+        Ok(())
+    }
+
+    /// The measurement likelihood over the present components of `y`.
+    fn likelihood(
+        &self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        t: f64,
+    ) -> Result<Likelihood<M::Meas>, FilterError> {
+        let r = self.model.measurement_noise(t);
+        let mut masked = r.clone();
+        let mut unused = y.map(|_| 0.0);
+        mask_missing::<M::State, M::Meas>(y, &mut unused, &mut masked, None);
+        let chol =
+            cholesky(&masked, "measurement noise covariance R").map_err(|e| self.tag.numeric(e))?;
+        let (md, _) = r.shape_generic();
+        let inverse_factor = chol
+            .l()
+            .solve_lower_triangular(&OMatrix::<f64, M::Meas, M::Meas>::identity_generic(md, md))
+            .ok_or_else(|| {
+                self.tag.numeric(NumericError::NotPositiveDefinite {
+                    quantity: "measurement noise covariance R",
+                })
+            })?;
+        Ok(Likelihood {
+            inverse_factor,
+            log_norm: -0.5 * (chol.ln_determinant() + present as f64 * LN_2PI),
+            r,
+        })
+    }
+
+    /// Adds ln p(y | xᵢ) of the points `source` (the particles, or the auxiliary anchors) to
+    /// `target` (the log-weights, or the auxiliary scratch), keeping h(xᵢ) in `predicted_meas`
+    /// and the prior weight of every particle with a finite h(xᵢ) in `scratch`. Returns the
+    /// log-sum-exp of the new log-weights and the sum of `scratch`.
+    fn weigh(
+        &mut self,
+        source: Source,
+        target: Target,
+        y: &[f64],
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> (f64, f64) {
+        let model = &self.model;
+        let nd = model.state_dim();
+        let md = model.meas_dim();
+        let ud = model.input_dim();
+        let (n, m) = (nd.value(), md.value());
+        let points = match source {
+            Source::Particles => self.particles.as_slice(),
+            Source::Anchors => self.anchors.as_slice(),
+        };
+        let log_weights = match target {
+            Target::LogWeights => &mut self.log_weights,
+            Target::Scratch => &mut self.scratch_log,
+        };
+        let prior = &self.weights;
+        let inverse = lik.inverse_factor.as_slice();
+        let log_norm = lik.log_norm;
+        (
+            log_weights.par_chunks_mut(BLOCK),
+            self.predicted_meas.as_mut_slice().par_chunks_mut(m * BLOCK),
+            self.scratch.par_chunks_mut(BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .enumerate()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(b, (lw, meas, valid, slot))| {
+                let y = vector(md, y);
+                let u = vector(ud, u);
+                let (mut max, mut sum, mut valid_sum) = (f64::NEG_INFINITY, 0.0, 0.0);
+                for k in 0..lw.len() {
+                    let i = b * BLOCK + k;
+                    let x = vector(nd, &points[i * n..(i + 1) * n]);
+                    let z = model.measure(&x, &u, t);
+                    let out = &mut meas[k * m..(k + 1) * m];
+                    let l = if z.iter().all(|v| v.is_finite()) {
+                        out.copy_from_slice(z.as_slice());
+                        valid[k] = prior[i];
+                        valid_sum += prior[i];
+                        let e = model.measurement_residual(&y, &z);
+                        // ‖L⁻¹e‖² over the present components (missing ones contribute 0).
+                        let mut distance = 0.0;
+                        for r in 0..m {
+                            let mut row = 0.0;
+                            for c in 0..=r {
+                                if !y[c].is_nan() {
+                                    row += inverse[r + c * m] * e[c];
+                                }
+                            }
+                            distance += row * row;
+                        }
+                        log_norm - 0.5 * distance
+                    } else {
+                        out.fill(0.0);
+                        valid[k] = 0.0;
+                        f64::NEG_INFINITY
+                    };
+                    let mut w = lw[k] + l;
+                    if w.is_nan() {
+                        w = f64::NEG_INFINITY;
+                    }
+                    lw[k] = w;
+                    // Streaming log-sum-exp within the block.
+                    if w > max {
+                        sum = sum * (max - w).exp() + 1.0;
+                        max = w;
+                    } else if w > f64::NEG_INFINITY {
+                        sum += (w - max).exp();
+                    }
+                }
+                slot[0] = max;
+                slot[1] = sum;
+                slot[2] = valid_sum;
+            });
+        let blocks = block_count(self.count());
+        let slots = || self.partials.chunks_exact(self.stride).take(blocks);
+        let max = slots().map(|s| s[0]).fold(f64::NEG_INFINITY, f64::max);
+        let valid_sum: f64 = slots().map(|s| s[2]).sum();
+        if max == f64::NEG_INFINITY || max.is_nan() {
+            return (f64::NEG_INFINITY, valid_sum);
+        }
+        let total: f64 = slots()
+            .filter(|s| s[0] > f64::NEG_INFINITY)
+            .map(|s| s[1] * (s[0] - max).exp())
+            .sum();
+        (max + total.ln(), valid_sum)
+    }
+
+    /// Innovation y − ŷ and S = Σ w̄ᵢ eᵢeᵢᵀ + R from the last weighting pass over the
+    /// predicted particles (`scratch` holds their prior weights, summing to `valid_sum` > 0).
+    fn innovation_stats(
+        &mut self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        valid_sum: f64,
+        r: &OMatrix<f64, M::Meas, M::Meas>,
+    ) -> Result<(), FilterError> {
+        if valid_sum != 1.0 {
+            let scale = 1.0 / valid_sum;
+            self.scratch.iter_mut().for_each(|w| *w *= scale);
+        }
+        let predicted = self
+            .model
+            .measurement_mean(&self.predicted_meas, &self.scratch);
+        let model = &self.model;
+        let md = model.meas_dim();
+        let m = md.value();
+        let centre = predicted.as_slice();
+        let weights = &self.scratch;
+        (
+            self.predicted_meas.as_slice().par_chunks(m * BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .enumerate()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(b, (meas, slot))| {
+                let centre = vector(md, centre);
+                let mut sum = OMatrix::<f64, M::Meas, M::Meas>::zeros_generic(md, md);
+                for (k, z) in meas.chunks_exact(m).enumerate() {
+                    let w = weights[b * BLOCK + k];
+                    if w != 0.0 {
+                        let e = model.measurement_residual(&vector(md, z), &centre);
+                        sum.ger(w, &e, &e, 1.0);
+                    }
+                }
+                slot[..m * m].copy_from_slice(sum.as_slice());
+            });
+        let mut s = r.clone();
+        let blocks = block_count(self.count());
+        for slot in self.partials.chunks_exact(self.stride).take(blocks) {
+            for (t, v) in s.iter_mut().zip(&slot[..m * m]) {
+                *t += v;
+            }
+        }
+        sightline_core::linalg::symmetrise(&mut s);
+        let mut residual = model.measurement_residual(y, &predicted);
+        mask_missing::<M::State, M::Meas>(y, &mut residual, &mut s, None);
+        let chol = cholesky(&s, "innovation covariance").map_err(|e| self.tag.numeric(e))?;
+        self.innov.nis = residual.dot(&chol.solve(&residual));
+        self.innov.residual = residual;
+        self.innov.covariance = s;
+        self.innov.present = present;
+        Ok(())
+    }
+
+    /// Normalises the log-weights by `log_z` and refreshes the linear weights; returns the ESS.
+    fn normalise(&mut self, log_z: f64) -> f64 {
+        (
+            self.log_weights.par_chunks_mut(BLOCK),
+            self.weights.par_chunks_mut(BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(lw, w, slot)| {
+                let mut squares = 0.0;
+                for (l, w) in lw.iter_mut().zip(w.iter_mut()) {
+                    *l -= log_z;
+                    *w = l.exp();
+                    squares += *w * *w;
+                }
+                slot[0] = squares;
+            });
+        let blocks = block_count(self.count());
+        let squares: f64 = self
+            .partials
+            .chunks_exact(self.stride)
+            .take(blocks)
+            .map(|s| s[0])
+            .sum();
+        self.ess = 1.0 / squares;
+        self.ess
+    }
+
+    /// Resamples by the current weights into the spare buffer, swaps, and jitters.
+    fn resample(&mut self) -> Result<(), FilterError> {
+        let step = self.tag.step as u64;
+        let mut rng = stream(self.seed, &[purpose::RESAMPLE, step]);
+        resample(
+            self.config.scheme,
+            &self.weights,
+            &mut rng,
+            &mut self.ancestors,
+        );
+        let n = self.model.state_dim().value();
+        let source = self.particles.as_slice();
+        let ancestors = &self.ancestors;
+        self.spare
+            .as_mut_slice()
+            .par_chunks_mut(n * BLOCK)
+            .enumerate()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(b, chunk)| {
+                for (k, x) in chunk.chunks_exact_mut(n).enumerate() {
+                    let a = ancestors[b * BLOCK + k];
+                    x.copy_from_slice(&source[a * n..(a + 1) * n]);
+                }
+            });
+        std::mem::swap(&mut self.particles, &mut self.spare);
+        self.set_uniform_weights();
+        self.diagnostics.resamples += 1;
+        self.jitter()
+    }
+
+    /// Roughening or regularisation after a resampling.
+    fn jitter(&mut self) -> Result<(), FilterError> {
+        let nd = self.model.state_dim();
+        let n = nd.value();
+        let count = self.count() as f64;
+        let factor = match self.config.jitter {
+            Jitter::None => return Ok(()),
+            Jitter::Roughening(k) => {
+                if k == 0.0 {
+                    return Ok(());
+                }
+                let spread = self.spread();
+                let scale = k * count.powf(-1.0 / n as f64);
+                OMatrix::<f64, M::State, M::State>::from_diagonal(&(spread * scale))
+            }
+            Jitter::Regularised => {
+                // Optimal bandwidth of the Gaussian kernel (Musso et al. 2001, eq. 12.7).
+                let nf = n as f64;
+                let a = (4.0 / (nf + 2.0)).powf(1.0 / (nf + 4.0));
+                let h = a * count.powf(-1.0 / (nf + 4.0));
+                lower_factor(&self.cov, "particle covariance").map_err(|e| self.tag.numeric(e))? * h
+            }
+        };
+        cloud::scatter(
+            &self.model,
+            self.particles.as_mut_slice(),
+            None,
+            factor.as_slice(),
+            self.seed,
+            purpose::JITTER,
+            self.tag.step as u64,
+        );
+        Ok(())
+    }
+
+    /// Per-state spread max − min of the cloud (block partials; min/max are order-free).
+    fn spread(&mut self) -> OVector<f64, M::State> {
+        let nd = self.model.state_dim();
+        let n = nd.value();
+        (
+            self.particles.as_slice().par_chunks(n * BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(chunk, slot)| {
+                let (lo, hi) = slot[..2 * n].split_at_mut(n);
+                lo.fill(f64::INFINITY);
+                hi.fill(f64::NEG_INFINITY);
+                for x in chunk.chunks_exact(n) {
+                    for j in 0..n {
+                        lo[j] = lo[j].min(x[j]);
+                        hi[j] = hi[j].max(x[j]);
+                    }
+                }
+            });
+        let mut spread = OVector::<f64, M::State>::zeros_generic(nd, nalgebra::U1);
+        let blocks = block_count(self.count());
+        for j in 0..n {
+            let slots = || self.partials.chunks_exact(self.stride).take(blocks);
+            let lo = slots().map(|s| s[j]).fold(f64::INFINITY, f64::min);
+            let hi = slots().map(|s| s[n + j]).fold(f64::NEG_INFINITY, f64::max);
+            spread[j] = hi - lo;
+        }
+        spread
+    }
+
+    /// Replaces the cloud by a draw from the current (predicted) Gaussian, equally weighted.
+    fn redraw(&mut self) -> Result<(), FilterError> {
+        let factor =
+            lower_factor(&self.cov, "predicted covariance").map_err(|e| self.tag.numeric(e))?;
+        cloud::scatter(
+            &self.model,
+            self.particles.as_mut_slice(),
+            Some(self.mean.as_slice()),
+            factor.as_slice(),
+            self.seed,
+            purpose::REDRAW,
+            self.tag.step as u64,
+        );
+        self.set_uniform_weights();
+        self.diagnostics.redraws += 1;
+        Ok(())
+    }
+
+    /// The collapse remedy: an error, or (with `redraw=on`) a re-drawn and re-weighed cloud.
+    /// Returns the new log normaliser, or `None` if the measurement had to be skipped.
+    fn recover(
+        &mut self,
+        y: &[f64],
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> Result<Option<(f64, f64)>, FilterError> {
+        if !self.config.redraw {
+            return Err(self.collapse());
+        }
+        self.redraw()?;
+        let (log_z, valid_sum) = self.weigh(Source::Particles, Target::LogWeights, y, u, t, lik);
+        if log_z.is_finite() {
+            return Ok(Some((log_z, valid_sum)));
+        }
+        self.set_uniform_weights();
+        self.innov.clear();
+        self.log_likelihood = 0.0;
+        self.estimate()?;
+        Ok(None)
+    }
+
+    /// Normalise, estimate and resample when the ESS is low.
+    fn finish_update(&mut self, log_z: f64) -> Result<(), FilterError> {
+        let ess = self.normalise(log_z);
+        self.estimate()?;
+        if ess < self.config.ess * self.count() as f64 {
+            self.resample()?;
+        }
+        Ok(())
+    }
+
+    fn sir_update(
+        &mut self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> Result<(), FilterError> {
+        let ys = y.as_slice();
+        let (mut log_z, mut valid_sum) =
+            self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
+        if !log_z.is_finite() {
+            match self.recover(ys, u, t, lik)? {
+                Some(found) => (log_z, valid_sum) = found,
+                None => return Ok(()),
+            }
+        }
+        self.innovation_stats(y, present, valid_sum, &lik.r)?;
+        self.log_likelihood = log_z;
+        self.finish_update(log_z)
+    }
+
+    fn auxiliary_update(
+        &mut self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> Result<(), FilterError> {
+        let ys = y.as_slice();
+        // Innovation statistics from the predicted cloud (its weights are discarded).
+        self.scratch_log.copy_from_slice(&self.log_weights);
+        let (log_z, valid_sum) = self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
+        if log_z.is_finite() {
+            self.innovation_stats(y, present, valid_sum, &lik.r)?;
+        }
+        // First stage: λⱼ ∝ w̄ⱼ p(y | μⱼ).
+        self.scratch_log.copy_from_slice(&self.log_weights);
+        let (log_first, _) = self.weigh(Source::Anchors, Target::Scratch, ys, u, t, lik);
+        if !log_first.is_finite() {
+            // The look-ahead points all miss the measurement: take the bootstrap step.
+            return self.sir_update(y, present, u, t, lik);
+        }
+        for (w, l) in self.scratch.iter_mut().zip(&self.scratch_log) {
+            *w = (l - log_first).exp();
+        }
+        let step = self.tag.step as u64;
+        let mut rng = stream(self.seed, &[purpose::AUXILIARY_SELECT, step]);
+        resample(
+            self.config.scheme,
+            &self.scratch,
+            &mut rng,
+            &mut self.ancestors,
+        );
+        // Second-stage weights start at −ln p(y | μ_a) = −(log λ̃_a − ln w̄_a).
+        for (i, &a) in self.ancestors.iter().enumerate() {
+            self.weights[i] = self.log_weights[a] - self.scratch_log[a];
+        }
+        self.log_weights.copy_from_slice(&self.weights);
+        let how = Propagation {
+            input: self.last_input.as_slice(),
+            t: self.last_t,
+            dt: self.last_dt,
+            factor: self.q_factor.as_slice(),
+            noise: self.config.noise,
+            anchors: Some(self.anchors.as_slice()),
+            previous: Some(self.previous.as_slice()),
+            ancestors: Some(&self.ancestors),
+            key: purpose::AUXILIARY_PROPAGATE,
+            step,
+        };
+        let lost = cloud::propagate(
+            &self.model,
+            self.particles.as_mut_slice(),
+            &how,
+            self.seed,
+            &mut self.partials,
+            self.stride,
+        )
+        .map_err(|e| self.tag.numeric(e))?;
+        if lost > 0 {
+            let n = self.model.state_dim().value();
+            for (i, x) in self
+                .particles
+                .as_mut_slice()
+                .chunks_exact_mut(n)
+                .enumerate()
+            {
+                if x.iter().any(|v| v.is_nan()) {
+                    x.fill(0.0);
+                    self.log_weights[i] = f64::NEG_INFINITY;
+                }
+            }
+        }
+        let uniform = 1.0 / self.count() as f64;
+        self.weights.fill(uniform);
+        let (mut log_second, _) = self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
+        let mut log_likelihood = log_first + log_second - (self.count() as f64).ln();
+        if !log_second.is_finite() {
+            match self.recover(ys, u, t, lik)? {
+                Some((log_z, _)) => {
+                    log_second = log_z;
+                    log_likelihood = log_z;
+                }
+                None => return Ok(()),
+            }
+        }
+        self.innov.present = present;
+        self.log_likelihood = log_likelihood;
+        self.finish_update(log_second)
+    }
+}
+
+/// Which points a weighting pass measures.
+#[derive(Debug, Clone, Copy)]
+enum Source {
+    Particles,
+    Anchors,
+}
+
+/// Which log-weights a weighting pass adds to.
+#[derive(Debug, Clone, Copy)]
+enum Target {
+    LogWeights,
+    Scratch,
+}
+
+/// Reads the `pf` options of a spec.
+pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
+    let o = spec.options(INFO.options)?;
+    let defaults = PfConfig::default();
+    let particles = o.count("particles", defaults.particles, 2, 100_000_000)?;
+    let scheme_name = o.choice("resample", defaults.scheme.name(), Scheme::NAMES)?;
+    let scheme = Scheme::from_name(scheme_name).unwrap_or(defaults.scheme);
+    let ess = o.real(
+        "ess",
+        defaults.ess,
+        |e| (0.0..=1.0).contains(&e),
+        "a fraction of N from 0 to 1",
+    )?;
+    let roughening = o.real("roughening", 0.0, |k| k >= 0.0, "a number >= 0")?;
+    let regularise = o.switch("regularise", false)?;
+    let jitter = match (roughening > 0.0, regularise) {
+        (true, true) => {
+            return Err(o.not_applicable(
+                "roughening and regularise both jitter the resampled cloud; choose one",
+            ));
+        }
+        (true, false) => Jitter::Roughening(roughening),
+        (false, true) => Jitter::Regularised,
+        (false, false) => Jitter::None,
+    };
+    let variant = match o.choice("variant", "sir", &["sir", "auxiliary"])? {
+        "auxiliary" => Variant::Auxiliary,
+        _ => Variant::Sir,
+    };
+    let redraw = o.switch("redraw", false)?;
+    let noise = match o.choice("noise", "mean", &["mean", "each"])? {
+        "each" => NoiseAt::Each,
+        _ => NoiseAt::Mean,
+    };
+    Ok(PfConfig {
+        particles,
+        scheme,
+        ess,
+        jitter,
+        variant,
+        redraw,
+        noise,
+    })
+}
+
+/// Builds a `pf` from a spec.
+pub fn build<M: Model>(
+    model: &M,
+    prior: &Gaussian<M::State>,
+    spec: &FilterSpec,
+    seed: u64,
+) -> Result<Box<dyn Filter>, SpecError>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    let config = config_from_spec(spec)?;
+    let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed).map_err(
+        |e| SpecError::NotApplicable {
+            spec: spec.label.clone(),
+            reason: format!("cannot draw the initial particles: {e}"),
+        },
+    )?;
+    Ok(Box::new(pf))
+}
+
+impl<M: Model> Filter for ParticleFilter<M>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    fn label(&self) -> &str {
+        &self.tag.label
+    }
+
+    fn kind(&self) -> &'static str {
+        INFO.kind
+    }
+
+    fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
+        self.tag.step += 1;
+        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
+        self.last_input.copy_from(&input);
+        self.last_t = t;
+        self.last_dt = dt;
+        if self.config.noise == NoiseAt::Mean {
+            let q = self.model.process_noise(&self.mean, &input, t, dt);
+            self.q_factor =
+                lower_factor(&q, "process noise covariance Q").map_err(|e| self.tag.numeric(e))?;
+        }
+        let auxiliary = self.config.variant == Variant::Auxiliary;
+        if auxiliary {
+            self.previous.copy_from(&self.particles);
+            cloud::transition_means(
+                &self.model,
+                self.previous.as_slice(),
+                self.anchors.as_mut_slice(),
+                u,
+                t,
+                dt,
+            );
+        }
+        let how = Propagation {
+            input: u,
+            t,
+            dt,
+            factor: self.q_factor.as_slice(),
+            noise: self.config.noise,
+            anchors: auxiliary.then_some(self.anchors.as_slice()),
+            previous: auxiliary.then_some(self.previous.as_slice()),
+            ancestors: None,
+            key: purpose::PREDICT,
+            step: self.tag.step as u64,
+        };
+        let lost = cloud::propagate(
+            &self.model,
+            self.particles.as_mut_slice(),
+            &how,
+            self.seed,
+            &mut self.partials,
+            self.stride,
+        )
+        .map_err(|e| self.tag.numeric(e))?;
+        if lost > 0 {
+            self.discard_lost()?;
+        }
+        self.anchored = auxiliary;
+        self.estimate()
+    }
+
+    fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
+        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
+        let y = self.tag.vector(self.model.meas_dim(), y, "measurement")?;
+        let present = present_mask(&y).map_err(|e| self.tag.numeric(e))?;
+        let anchored = std::mem::take(&mut self.anchored);
+        if present == 0 {
+            self.innov.clear();
+            self.log_likelihood = 0.0;
+            return Ok(());
+        }
+        let lik = self.likelihood(&y, present, t)?;
+        if anchored {
+            self.auxiliary_update(&y, present, input.as_slice(), t, &lik)
+        } else {
+            self.sir_update(&y, present, input.as_slice(), t, &lik)
+        }
+    }
+
+    fn mean(&self) -> &[f64] {
+        self.mean.as_slice()
+    }
+
+    fn covariance(&self) -> &[f64] {
+        self.cov.as_slice()
+    }
+
+    fn innovation(&self) -> Option<Innovation<'_>> {
+        self.innov.view()
+    }
+
+    fn log_likelihood_increment(&self) -> f64 {
+        if self.innov.present > 0 {
+            self.log_likelihood
+        } else {
+            0.0
+        }
+    }
+
+    fn diagnostics(&self) -> Diagnostics {
+        self.diagnostics
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn spec_options_are_read_and_checked() {
+        let spec = FilterSpec::parse(
+            "pf:particles=5000,resample=residual,ess=0.3,roughening=0.2,redraw=on,variant=auxiliary,noise=each",
+        )
+        .unwrap();
+        let c = config_from_spec(&spec).unwrap();
+        assert_eq!(c.particles, 5000);
+        assert_eq!(c.scheme, Scheme::Residual);
+        assert_eq!(c.ess, 0.3);
+        assert_eq!(c.jitter, Jitter::Roughening(0.2));
+        assert!(c.redraw);
+        assert_eq!(c.variant, Variant::Auxiliary);
+        assert_eq!(c.noise, NoiseAt::Each);
+        assert_eq!(
+            config_from_spec(&FilterSpec::parse("pf").unwrap()).unwrap(),
+            PfConfig::default()
+        );
+        for (bad, word) in [
+            ("pf:particles=1", "particles"),
+            ("pf:ess=1.5", "ess"),
+            ("pf:resample=best", "systematic"),
+            ("pf:roughening=-1", "roughening"),
+            ("pf:roughening=0.2,regularise=on", "choose one"),
+            ("pf:variant=unscented", "auxiliary"),
+            ("pf:members=10", "particles"),
+        ] {
+            let e = config_from_spec(&FilterSpec::parse(bad).unwrap())
+                .unwrap_err()
+                .to_string();
+            assert!(e.contains(word), "{bad}: {e}");
+        }
+    }
+}
