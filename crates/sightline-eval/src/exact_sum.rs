@@ -36,8 +36,9 @@ pub struct ExactSum {
 
 impl Serialize for ExactSum {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        let mut seq = s.serialize_seq(Some(self.partials.len() + usize::from(self.nonfinite)))?;
-        for p in &self.partials {
+        let partials = self.canonical_partials();
+        let mut seq = s.serialize_seq(Some(partials.len() + usize::from(self.nonfinite)))?;
+        for p in &partials {
             seq.serialize_element(p)?;
         }
         if self.nonfinite {
@@ -107,6 +108,29 @@ impl ExactSum {
         for &p in &other.partials {
             self.add(p);
         }
+    }
+
+    /// The partials in a form that depends only on the exact value, not on the order of the
+    /// additions: the correctly rounded value, then the correctly rounded remainder, and so on,
+    /// smallest first. Written to `partial.json`, it makes equal sums equal files.
+    pub fn canonical_partials(&self) -> Vec<f64> {
+        if self.nonfinite {
+            return Vec::new();
+        }
+        let mut rest = self.clone();
+        let mut out = Vec::new();
+        // Each remainder is at most half an ulp of the previous value, so a double-range
+        // value is exhausted after at most about 2100/53 ≈ 40 terms.
+        for _ in 0..64 {
+            let v = rest.value();
+            if v == 0.0 {
+                break;
+            }
+            out.push(v);
+            rest.add(-v);
+        }
+        out.reverse();
+        out
     }
 
     /// The exact sum rounded once to the nearest double (ties to even); NaN after a non-finite
@@ -197,6 +221,9 @@ mod tests {
         }
         assert_eq!(forward.value().to_bits(), backward.value().to_bits());
         assert_eq!(forward.value().to_bits(), split.value().to_bits());
+        // The stored form is canonical too.
+        assert_eq!(forward.canonical_partials(), backward.canonical_partials());
+        assert_eq!(forward.canonical_partials(), split.canonical_partials());
     }
 
     #[test]

@@ -181,14 +181,17 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         .build_cartesian_2d(x0..x1, y0..y1)
         .map_err(plot_error)?;
     let log = plot.log_y;
+    // Tick values computed as k·step carry rounding noise (e.g. −5.55e−17 for 0).
+    let snap = |v: f64, span: f64| if v.abs() < 1e-9 * span { 0.0 } else { v };
+    let (x_span, y_span) = (x1 - x0, y1 - y0);
     let y_format = move |v: &f64| {
         if log {
             sig(10f64.powf(*v), 2)
         } else {
-            sig(*v, 3)
+            sig(snap(*v, y_span), 3)
         }
     };
-    let x_format = |v: &f64| sig(*v, 3);
+    let x_format = move |v: &f64| sig(snap(*v, x_span), 3);
     chart
         .configure_mesh()
         .x_desc(plot.x_label.as_str())
