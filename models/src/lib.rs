@@ -3,17 +3,44 @@
 //! Every model implements [`sightline_core::Model`]; its parameters, their units and sources are
 //! in its doc comment and listed by `sightline models`. Adding a plant is one file plus one line
 //! in [`visit_all`].
+//!
+//! | model | states | measured | source |
+//! |---|---|---|---|
+//! | [`pendulum`] | angle, rate | bob's horizontal position | scenario of our own, standard gravity |
+//! | [`cv`] | pos, vel | pos | Bar-Shalom, Li & Kirubarajan 2001 |
+//! | [`ungm`] | x | x²/20 | Kitagawa 1996; Gordon, Salmond & Smith 1993 |
+//! | [`quadtank`] | h1..h4 | kc·h1, kc·h2 | Johansson, IEEE TCST 8(3), 2000 |
+//! | [`cstr`] | ca, temp | temp | textbook exothermic CSTR benchmark |
+//! | [`tracking`] | px, py, vx, vy, omega | range, bearing | Bar-Shalom et al. 2001, §11.7 |
+//! | [`tankchain`] | h1..hn (n at run time) | hn | Torricelli cascade, `Dyn` states |
+//!
+//! ```
+//! use sightline_core::Model;
+//! use sightline_models::QuadTank;
+//! let plant = QuadTank::default();
+//! assert_eq!(plant.states().len(), 4);
+//! assert!(plant.parameters().iter().any(|p| p.name == "gamma1"));
+//! ```
 
 use sightline_core::ad::Differentiable;
 use sightline_core::nalgebra::DefaultAllocator;
 use sightline_core::{Alloc, Model};
 
+pub mod cstr;
 pub mod cv;
 pub mod pendulum;
+pub mod quadtank;
+pub mod tankchain;
+pub mod torricelli;
+pub mod tracking;
 pub mod ungm;
 
+pub use cstr::Cstr;
 pub use cv::Cv;
 pub use pendulum::Pendulum;
+pub use quadtank::QuadTank;
+pub use tankchain::TankChain;
+pub use tracking::Tracking;
 pub use ungm::Ungm;
 
 /// Something that can be handed every shipped model in turn, whatever its concrete type.
@@ -33,4 +60,8 @@ pub fn visit_all(visitor: &mut impl ModelVisitor) {
     visitor.visit(Pendulum::default());
     visitor.visit(Cv::default());
     visitor.visit(Ungm::default());
+    visitor.visit(QuadTank::default());
+    visitor.visit(Cstr::default());
+    visitor.visit(Tracking::default());
+    visitor.visit(TankChain::default());
 }

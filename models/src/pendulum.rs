@@ -236,3 +236,108 @@ impl Model for Pendulum {
         Some(i + (j1 + (j2 + j3) * 2.0 + j4) * (h / 6.0))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn undamped() -> Pendulum {
+        Pendulum {
+            damping: 0.0,
+            ..Pendulum::default()
+        }
+    }
+
+    /// Energy per unit mass and squared length: ½θ̇² + (g/L)(1 − cos θ).
+    fn energy(p: &Pendulum, x: &Vector2<f64>) -> f64 {
+        0.5 * x[1] * x[1] + p.g / p.length * (1.0 - x[0].cos())
+    }
+
+    #[test]
+    fn small_angle_period_is_two_pi_root_l_over_g() {
+        // Small-angle period T = 2π√(L/g) (closed form). The finite-amplitude correction,
+        // T/T₀ − 1 ≈ θ₀²/16 ≈ 6e-8 at θ₀ = 1e-3 rad, follows from the series of the complete
+        // elliptic integral of the first kind (Abramowitz & Stegun §17.3).
+        for length in [1.0, 0.25] {
+            let p = Pendulum {
+                length,
+                ..undamped()
+            };
+            let u = Vector1::new(0.0);
+            let mut x = Vector2::new(1e-3, 0.0);
+            let mut crossings = Vec::new();
+            for k in 0..5_000 {
+                let t = k as f64 * p.dt;
+                let next = p.transition(&x, &u, t, p.dt);
+                // Upward zero crossings of the angle, located by linear interpolation.
+                if x[0] < 0.0 && next[0] >= 0.0 {
+                    crossings.push(t + p.dt * x[0] / (x[0] - next[0]));
+                }
+                x = next;
+            }
+            let n = crossings.len() - 1;
+            let period = (crossings[n] - crossings[0]) / n as f64;
+            let expected = 2.0 * std::f64::consts::PI * (length / p.g).sqrt();
+            assert!(n >= 20, "{n} periods");
+            assert!(
+                (period / expected - 1.0).abs() < 1e-3,
+                "L = {length}: period {period} vs {expected}"
+            );
+        }
+    }
+
+    #[test]
+    fn undamped_rk4_energy_drift_stays_below_the_linear_bound() {
+        // RK4 applied to an oscillator of frequency ω multiplies the energy by |R(iωh)|² per
+        // step, R(z) = 1 + z + z²/2 + z³/6 + z⁴/24 its stability function (Hairer & Wanner,
+        // *Solving ODEs II*, §IV.2), i.e. 1 − (ωh)⁶/72 + (ωh)⁸/576 < 1: a slow loss. For the
+        // pendulum, ω ≤ √(g/L), so over N steps the relative loss is at most
+        // 1 − |R(i√(g/L)·h)|^(2N) (about 1.3e-7 for N = 10⁴, h = 0.01 s, L = 1 m); at small
+        // amplitude it equals that value.
+        let p = undamped();
+        let u = Vector1::new(0.0);
+        let steps: i32 = 10_000;
+        let y = (p.g / p.length).sqrt() * p.dt;
+        let gain = (1.0 - y * y / 2.0 + y.powi(4) / 24.0).powi(2) + (y - y.powi(3) / 6.0).powi(2);
+        let bound = 1.0 - gain.powi(steps);
+        assert!(bound > 1e-7 && bound < 2e-7, "{bound}");
+        for amplitude in [0.01, 0.1, 0.6, 1.5] {
+            let mut x = Vector2::new(amplitude, 0.0);
+            let e0 = energy(&p, &x);
+            for k in 0..steps {
+                x = p.transition(&x, &u, k as f64 * p.dt, p.dt);
+            }
+            let loss = 1.0 - energy(&p, &x) / e0;
+            assert!(
+                loss > 0.0 && loss <= bound,
+                "θ₀ = {amplitude}: loss {loss} vs {bound}"
+            );
+            if amplitude == 0.01 {
+                assert!((loss / bound - 1.0).abs() < 1e-2, "loss {loss} vs {bound}");
+            }
+        }
+    }
+
+    #[test]
+    fn hand_jacobian_equals_automatic_differentiation() {
+        use sightline_core::ad::{Differentiable, VectorFunction};
+        struct Step<'a>(&'a Pendulum);
+        impl VectorFunction<U2, U2> for Step<'_> {
+            fn eval<S: Real>(&self, x: &Vector2<S>) -> Vector2<S> {
+                self.0.transition(x, &Vector1::new(0.3), 0.0, self.0.dt)
+            }
+        }
+        let p = Pendulum::default();
+        for x in [
+            Vector2::new(0.6, 0.0),
+            Vector2::new(-2.0, 3.0),
+            Vector2::new(3.1, -1.0),
+        ] {
+            let (_, ad) = U2::jacobian(&Step(&p), &x);
+            let hand = p
+                .transition_jacobian(&x, &Vector1::new(0.3), 0.0, p.dt)
+                .unwrap();
+            assert!((hand - ad).abs().max() < 1e-14, "{hand} vs {ad}");
+        }
+    }
+}

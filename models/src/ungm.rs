@@ -7,9 +7,12 @@
 //!
 //! The measurement's square makes the sign of x unobservable from one
 //! sample, so the posterior is bimodal. Time is the step index (dt = 1); the cosine term uses the
-//! index of the state being predicted, k = t + dt.
+//! index of the state being predicted, k = t + dt. The plant is autonomous: it has no inputs.
 
-use sightline_core::nalgebra::{Matrix1, U1, Vector1};
+use sightline_core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
+
+/// The empty input vector of an autonomous plant.
+type NoInput = SVector<f64, 0>;
 use sightline_core::{Domain, Gaussian, Model, Parameter, Real, Variable};
 
 /// The growth model; every field is a `--set` parameter.
@@ -41,7 +44,7 @@ impl Default for Ungm {
 impl Model for Ungm {
     type State = U1;
     type Meas = U1;
-    type Input = U1;
+    type Input = U0;
 
     fn name(&self) -> &str {
         "ungm"
@@ -55,8 +58,8 @@ impl Model for Ungm {
     fn meas_dim(&self) -> U1 {
         U1
     }
-    fn input_dim(&self) -> U1 {
-        U1
+    fn input_dim(&self) -> U0 {
+        U0
     }
     fn states(&self) -> Vec<Variable> {
         vec![Variable::new("x", "-")]
@@ -65,26 +68,20 @@ impl Model for Ungm {
         vec![Variable::new("y", "-")]
     }
     fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("offset", "-")]
+        Vec::new()
     }
 
-    fn transition<S: Real>(&self, x: &Vector1<S>, u: &Vector1<f64>, t: f64, dt: f64) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, t: f64, dt: f64) -> Vector1<S> {
         let x = x[0];
         let k = t + dt;
-        Vector1::new(x * 0.5 + x * 25.0 / (x * x + 1.0) + 8.0 * (1.2 * k).cos() + u[0])
+        Vector1::new(x * 0.5 + x * 25.0 / (x * x + 1.0) + 8.0 * (1.2 * k).cos())
     }
 
-    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, _t: f64) -> Vector1<S> {
         Vector1::new(x[0] * x[0] / 20.0)
     }
 
-    fn process_noise(
-        &self,
-        _x: &Vector1<f64>,
-        _u: &Vector1<f64>,
-        _t: f64,
-        _dt: f64,
-    ) -> Matrix1<f64> {
+    fn process_noise(&self, _x: &Vector1<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix1<f64> {
         Matrix1::new(self.q)
     }
 
@@ -96,8 +93,8 @@ impl Model for Ungm {
         Gaussian::new(Vector1::new(self.x0), Matrix1::new(self.p0))
     }
 
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(0.0)
+    fn default_input(&self) -> NoInput {
+        NoInput::zeros()
     }
 
     fn dt(&self) -> f64 {

@@ -181,6 +181,10 @@ pub fn parse_set(item: &str) -> Result<(String, f64)> {
 }
 
 /// Finds a plant by name and applies the `--set` overrides.
+///
+/// Model parameters are applied before prior means (`x0.`) and inputs (`u.`), each group in the
+/// order given, so that a parameter that sizes the plant (`tankchain`'s `n`) may come anywhere
+/// on the command line.
 pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<dyn AnyPlant>> {
     let Some(found) = plants.iter().find(|p| p.name() == args.model) else {
         return Err(Error::Usage(format!(
@@ -194,8 +198,14 @@ pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<d
         )));
     };
     let mut plant = found.clone_box();
-    for item in &args.set {
-        let (name, value) = parse_set(item)?;
+    let mut sets = args
+        .set
+        .iter()
+        .map(|item| parse_set(item))
+        .collect::<Result<Vec<_>>>()?;
+    // Stable: parameters first, then x0./u. overrides, each in command-line order.
+    sets.sort_by_key(|(name, _)| name.starts_with("x0.") || name.starts_with("u."));
+    for (name, value) in sets {
         plant.set(&name, value)?;
     }
     Ok(plant)

@@ -88,9 +88,9 @@ where
     /// The prior with `x0.` overrides applied.
     pub fn prior_gaussian(&self) -> Gaussian<M::State> {
         let mut prior = self.model.prior();
-        for (i, v) in self.x0.iter().enumerate() {
+        for (m, v) in prior.mean.iter_mut().zip(&self.x0) {
             if let Some(v) = v {
-                prior.mean[i] = *v;
+                *m = *v;
             }
         }
         prior
@@ -99,9 +99,9 @@ where
     /// The constant input with `u.` overrides applied.
     pub fn input_vector(&self) -> OVector<f64, M::Input> {
         let mut u = self.model.default_input();
-        for (i, v) in self.u.iter().enumerate() {
+        for (ui, v) in u.iter_mut().zip(&self.u) {
             if let Some(v) = v {
-                u[i] = *v;
+                *ui = *v;
             }
         }
         u
@@ -203,6 +203,10 @@ where
             Ok(p) => {
                 let p = p.name;
                 self.model.apply_parameter(p, value);
+                // A runtime-sized model may have changed its number of states or inputs
+                // (e.g. `tankchain`'s `n`): keep the overrides in step, dropping any beyond it.
+                self.x0.resize(self.model.states().len(), None);
+                self.u.resize(self.model.inputs().len(), None);
                 Ok(())
             }
             Err(ParamError::Unknown { model, name, .. }) => {

@@ -5,6 +5,39 @@ use comfy_table::{Table, presets::UTF8_FULL_CONDENSED};
 use crate::error::Result;
 use crate::plant::AnyPlant;
 
+/// Longest list of states printed in full; longer ones (runtime-sized plants) are elided.
+const FULL_LIST: usize = 8;
+
+/// A number as a user would type it: plain for ordinary magnitudes, exponent form for very
+/// large or small ones (`7.2e10`, not `72000000000`), at most six significant digits unless
+/// `exact` (parameter defaults are shown exactly; computed prior means are rounded).
+fn number(v: f64, exact: bool) -> String {
+    let v = if exact || v == 0.0 || !v.is_finite() {
+        v
+    } else {
+        format!("{v:.5e}").parse().unwrap_or(v)
+    };
+    let magnitude = v.abs();
+    if magnitude != 0.0 && !(1e-4..1e7).contains(&magnitude) {
+        format!("{v:e}")
+    } else {
+        format!("{v}")
+    }
+}
+
+/// `a, b, c, ..., z (n in all)` for long lists, the whole list otherwise.
+fn elide(items: Vec<String>) -> String {
+    if items.len() <= FULL_LIST {
+        return items.join(", ");
+    }
+    let n = items.len();
+    format!(
+        "{}, ..., {} ({n} in all)",
+        items[..3].join(", "),
+        items[n - 1]
+    )
+}
+
 /// Text listing of every plant, as printed by `sightline models`.
 pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
     let mut out = String::new();
@@ -13,10 +46,11 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
             if v.is_empty() {
                 "(none)".to_string()
             } else {
-                v.iter()
-                    .map(|v| format!("{} [{}]", v.name, v.unit))
-                    .collect::<Vec<_>>()
-                    .join(", ")
+                elide(
+                    v.iter()
+                        .map(|v| format!("{} [{}]", v.name, v.unit))
+                        .collect(),
+                )
             }
         };
         out.push_str(&format!("{}: {}\n", p.name(), p.description()));
@@ -30,7 +64,7 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
             inputs
                 .iter()
                 .zip(&constant)
-                .map(|(v, c)| format!("{} [{}] = {c}", v.name, v.unit))
+                .map(|(v, c)| format!("{} [{}] = {}", v.name, v.unit, number(*c, true)))
                 .collect::<Vec<_>>()
                 .join(", ")
         };
@@ -38,12 +72,13 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
         let (mean, _) = p.prior();
         out.push_str(&format!(
             "  prior mean:   {}\n",
-            p.states()
-                .iter()
-                .zip(&mean)
-                .map(|(v, m)| format!("x0.{}={m}", v.name))
-                .collect::<Vec<_>>()
-                .join(", ")
+            elide(
+                p.states()
+                    .iter()
+                    .zip(&mean)
+                    .map(|(v, m)| format!("x0.{}={}", v.name, number(*m, false)))
+                    .collect()
+            )
         ));
         let mut table = Table::new();
         table.load_style(UTF8_FULL_CONDENSED);
@@ -51,7 +86,7 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
         for param in p.parameters() {
             table.add_row(vec![
                 param.name.to_string(),
-                format!("{}", param.value),
+                number(param.value, true),
                 param.unit.to_string(),
                 param.domain.describe(),
                 param.about.to_string(),
@@ -84,4 +119,26 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
 pub fn run(plants: &[Box<dyn AnyPlant>]) -> Result<()> {
     print!("{}", listing(plants));
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_read_as_typed() {
+        assert_eq!(number(7.2e10, true), "7.2e10");
+        assert_eq!(number(1e-5, true), "1e-5");
+        assert_eq!(number(0.001, true), "0.001");
+        assert_eq!(number(-50000.0, true), "-50000");
+        assert_eq!(number(10.090560158989865, false), "10.0906");
+        assert_eq!(number(0.0, false), "0");
+    }
+
+    #[test]
+    fn long_lists_are_elided() {
+        let items: Vec<String> = (1..=64).map(|i| format!("h{i}")).collect();
+        assert_eq!(elide(items), "h1, h2, h3, ..., h64 (64 in all)");
+        assert_eq!(elide(vec!["a".into(), "b".into()]), "a, b");
+    }
 }
