@@ -621,6 +621,7 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
         },
         smoothed_rmse_all: None,
         anees_band: if ok { band.map(|b| b.to_array()) } else { None },
+        nees_tails: None,
         anis_band: anis_band.map(|b| b.to_array()),
         whiteness: None,
         diagnostics: t.diagnostics,

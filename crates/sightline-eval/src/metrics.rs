@@ -265,6 +265,10 @@ pub struct FilterMetrics {
     pub nees_steps: u64,
     /// Steps whose NEES is inside the χ²(n) band.
     pub nees_inside: u64,
+    /// Steps whose NEES is below the band.
+    pub nees_below: u64,
+    /// Steps whose NEES is above the band.
+    pub nees_above: u64,
     /// Σ NIS over updates with a measurement.
     pub nis_sum: f64,
     /// Σ degrees of freedom of those NIS values.
@@ -293,6 +297,8 @@ impl FilterMetrics {
             nees_sum: 0.0,
             nees_steps: 0,
             nees_inside: 0,
+            nees_below: 0,
+            nees_above: 0,
             nis_sum: 0.0,
             nis_dof: 0,
             nis_steps: 0,
@@ -318,8 +324,14 @@ impl FilterMetrics {
         }
         self.nees_sum += nees;
         self.nees_steps += 1;
-        if self.nees_band.is_some_and(|b| b.contains(nees)) {
-            self.nees_inside += 1;
+        if let Some(b) = self.nees_band {
+            if nees < b.lo {
+                self.nees_below += 1;
+            } else if nees > b.hi {
+                self.nees_above += 1;
+            } else {
+                self.nees_inside += 1;
+            }
         }
     }
 
@@ -401,6 +413,14 @@ impl FilterMetrics {
     /// Share of steps whose NEES is inside the χ²(n) band.
     pub fn nees_in_band(&self) -> Option<f64> {
         (self.nees_steps > 0).then(|| self.nees_inside as f64 / self.nees_steps as f64)
+    }
+
+    /// Shares of steps whose NEES lies below and above the χ²(n) band (2.5 % each expected).
+    pub fn nees_tails(&self) -> Option<[f64; 2]> {
+        (self.nees_steps > 0).then(|| {
+            let n = self.nees_steps as f64;
+            [self.nees_below as f64 / n, self.nees_above as f64 / n]
+        })
     }
 
     /// Average NIS over the updates that used a measurement.

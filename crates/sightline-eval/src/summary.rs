@@ -130,6 +130,10 @@ pub struct FilterSummary {
     /// 95 % band of `anees`: χ²(K·n)/K with K = steps (`compare`, time average) or K = runs
     /// (`montecarlo`, Bar-Shalom et al. 2001 §5.4).
     pub anees_band: Option<[f64; 2]>,
+    /// Single dataset: shares of steps whose NEES lies below and above the χ²(n) band (2.5 %
+    /// each for a consistent filter).
+    #[serde(default)]
+    pub nees_tails: Option<[f64; 2]>,
     /// 95 % band of `anis`, built the same way from the measurement components present.
     pub anis_band: Option<[f64; 2]>,
     /// Innovation whiteness (single dataset only).
@@ -199,10 +203,14 @@ pub fn criteria(truth: bool, campaign: bool) -> Vec<String> {
         c.push(if campaign {
             "state consistency: ANEES over runs against χ²(M·n)/M, share of steps inside".to_string()
         } else {
-            "state consistency: NEES against χ²(n), time-average against χ²(N·n)/N".to_string()
+            "state consistency: share of steps with NEES below / above the χ²(n) band".to_string()
         });
     }
-    c.push("innovation consistency: NIS against χ²(m)".to_string());
+    c.push(if campaign {
+        "innovation consistency: NIS averaged over runs against χ²(M·m)/M".to_string()
+    } else {
+        "innovation consistency: time-average NIS against χ²(Σm)/N".to_string()
+    });
     if !campaign {
         c.push("innovation whiteness: normalised autocorrelation, ±1.96/√N (Mehra 1970)".into());
     }

@@ -62,13 +62,29 @@ fn judge(value: Option<f64>, band: Option<[f64; 2]>) -> Consistency {
     }
 }
 
-/// A filter's consistency: by NEES with truth, else by NIS.
-pub fn consistency(f: &FilterSummary, truth: bool) -> Consistency {
-    if truth {
-        judge(f.anees, f.anees_band)
-    } else {
-        judge(f.anis, f.anis_band)
+/// Share of steps in one tail of the χ²(n) band beyond which a single run's NEES counts as
+/// inconsistent: four times the 2.5 % a consistent filter puts there. This threshold is our own
+/// choice: neighbouring steps' errors are correlated, so one run has no exact test of the NEES
+/// (the time-average test is exact only for the white innovations, i.e. the NIS).
+pub const TAIL_LIMIT: f64 = 0.10;
+
+/// State consistency: over Monte Carlo runs the ANEES against χ²(M·n)/M; on one dataset the
+/// shares of steps whose NEES falls below or above the χ²(n) band.
+pub fn state_consistency(f: &FilterSummary, campaign: bool) -> Consistency {
+    if campaign {
+        return judge(f.anees, f.anees_band);
     }
+    match f.nees_tails {
+        Some([below, above]) if above > TAIL_LIMIT && above >= below => Consistency::OverConfident,
+        Some([below, _]) if below > TAIL_LIMIT => Consistency::UnderConfident,
+        Some(_) => Consistency::Consistent,
+        None => Consistency::Unknown,
+    }
+}
+
+/// Innovation consistency: the average NIS against its 95 % band.
+pub fn innovation_consistency(f: &FilterSummary) -> Consistency {
+    judge(f.anis, f.anis_band)
 }
 
 fn names(list: &[&FilterSummary]) -> String {
@@ -104,10 +120,7 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
         lines.push("No filter ran to the end on this data.".into());
         return lines.join("\n");
     }
-    let statistic = if truth { "ANEES" } else { "ANIS" };
-    let value = |f: &FilterSummary| if truth { f.anees } else { f.anis };
-    let band = |f: &FilterSummary| if truth { f.anees_band } else { f.anis_band };
-
+    let campaign = runs.is_some();
     // Accuracy.
     let mut best_accuracy: Option<&FilterSummary> = None;
     if truth {
@@ -137,45 +150,108 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
     }
 
     // Consistency.
-    let mut consistent = Vec::new();
-    let mut over = Vec::new();
-    let mut under = Vec::new();
-    for f in &ok {
-        match consistency(f, truth) {
-            Consistency::Consistent => consistent.push(*f),
-            Consistency::OverConfident => over.push(*f),
-            Consistency::UnderConfident => under.push(*f),
-            Consistency::Unknown => {}
-        }
-    }
-    let describe = |f: &FilterSummary| {
-        let b = band(f).unwrap_or([f64::NAN; 2]);
+    let band_text = |v: Option<f64>, b: Option<[f64; 2]>| {
+        let b = b.unwrap_or([f64::NAN; 2]);
         format!(
-            "{} ({statistic} {} vs band [{}, {}])",
-            f.label,
-            sig(value(f).unwrap_or(f64::NAN), 3),
+            "{} vs band [{}, {}]",
+            sig(v.unwrap_or(f64::NAN), 3),
             sig(b[0], 3),
             sig(b[1], 3)
         )
     };
-    if !consistent.is_empty() {
+    let state_text = |f: &FilterSummary, over: bool| {
+        if campaign {
+            format!("{} (ANEES {})", f.label, band_text(f.anees, f.anees_band))
+        } else {
+            let [below, above] = f.nees_tails.unwrap_or([f64::NAN; 2]);
+            format!(
+                "{} (NEES {} its χ² band on {} % of steps, 2.5 % expected)",
+                f.label,
+                if over { "above" } else { "below" },
+                sig(100.0 * if over { above } else { below }, 2)
+            )
+        }
+    };
+    let mut state_ok: Vec<&FilterSummary> = Vec::new();
+    let mut over = Vec::new();
+    let mut under = Vec::new();
+    if truth {
+        for f in &ok {
+            match state_consistency(f, campaign) {
+                Consistency::Consistent => state_ok.push(*f),
+                Consistency::OverConfident => over.push(*f),
+                Consistency::UnderConfident => under.push(*f),
+                Consistency::Unknown => {}
+            }
+        }
+        if !state_ok.is_empty() {
+            lines.push(format!(
+                "State-consistent ({}): {}.",
+                if campaign {
+                    "ANEES inside its 95 % band"
+                } else {
+                    "NEES tails within 10 % of steps each"
+                },
+                names(&state_ok)
+            ));
+        }
+        if !over.is_empty() {
+            lines.push(format!(
+                "Over-confident (covariance smaller than the actual error): {}.",
+                over.iter()
+                    .map(|f| state_text(f, true))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
+        if !under.is_empty() {
+            lines.push(format!(
+                "Under-confident (covariance larger than the actual error): {}.",
+                under
+                    .iter()
+                    .map(|f| state_text(f, false))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
+    }
+    let mut nis_ok: Vec<&FilterSummary> = Vec::new();
+    let mut nis_bad: Vec<String> = Vec::new();
+    for f in &ok {
+        match innovation_consistency(f) {
+            Consistency::Consistent => nis_ok.push(*f),
+            c @ (Consistency::OverConfident | Consistency::UnderConfident) => nis_bad.push(format!(
+                "{} (ANIS {}, {})",
+                f.label,
+                band_text(f.anis, f.anis_band),
+                if c == Consistency::OverConfident {
+                    "innovations larger than predicted"
+                } else {
+                    "innovations smaller than predicted"
+                }
+            )),
+            Consistency::Unknown => {}
+        }
+    }
+    if !nis_bad.is_empty() {
         lines.push(format!(
-            "Consistent ({statistic} inside its 95 % band): {}.",
-            names(&consistent)
+            "Innovation-inconsistent (ANIS outside its 95 % band): {}.",
+            nis_bad.join(", ")
+        ));
+    } else if !truth && !nis_ok.is_empty() {
+        lines.push(format!(
+            "Innovation-consistent (ANIS inside its 95 % band): {}.",
+            names(&nis_ok)
         ));
     }
-    if !over.is_empty() {
-        lines.push(format!(
-            "Over-confident (covariance smaller than the actual error): {}.",
-            over.iter().map(|f| describe(f)).collect::<Vec<_>>().join(", ")
-        ));
-    }
-    if !under.is_empty() {
-        lines.push(format!(
-            "Under-confident (covariance larger than the actual error): {}.",
-            under.iter().map(|f| describe(f)).collect::<Vec<_>>().join(", ")
-        ));
-    }
+    let white_ok = |f: &FilterSummary| f.whiteness.as_ref().and_then(|w| w.white) != Some(false);
+    let consistent: Vec<&FilterSummary> = ok
+        .iter()
+        .copied()
+        .filter(|f| !truth || state_ok.iter().any(|g| g.label == f.label))
+        .filter(|f| nis_ok.iter().any(|g| g.label == f.label))
+        .filter(|f| white_ok(f))
+        .collect();
 
     // Whiteness (single dataset).
     if runs.is_none() {
@@ -256,7 +332,6 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
         consistent
             .iter()
             .copied()
-            .filter(|f| f.whiteness.as_ref().and_then(|w| w.white) != Some(false))
             .max_by(|a, b| {
                 a.log_likelihood
                     .partial_cmp(&b.log_likelihood)
@@ -266,7 +341,7 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
     match pick {
         Some(p) => {
             let why = if truth {
-                "the most accurate of the consistent filters"
+                "the most accurate of the filters consistent in state and innovations"
             } else {
                 "the best predictive fit among the filters with consistent, white innovations"
             };
@@ -337,6 +412,7 @@ mod tests {
             seconds_per_step: cost,
             smoothed_rmse_all: None,
             anees_band: Some([1.8, 2.2]),
+            nees_tails: None,
             anis_band: Some([0.9, 1.1]),
             whiteness: None,
             diagnostics: DiagnosticsSummary::default(),
@@ -361,7 +437,7 @@ mod tests {
                 failed,
             ],
             true,
-            None,
+            Some(100),
             500,
         );
         assert!(v.contains("Most accurate: ukf"), "{v}");
@@ -371,6 +447,20 @@ mod tests {
         assert!(v.contains("pf failed: particle collapse"), "{v}");
         assert!(v.contains("ekf is within 5 % of its accuracy at 4.0× lower cost"), "{v}");
         assert!(v.contains("not a universal ranking"), "{v}");
+    }
+
+    #[test]
+    fn a_single_run_judges_the_nees_tails_and_the_nis() {
+        let mut good = filter("ekf", 0.1, 2.4, 1e-6);
+        good.nees_tails = Some([0.02, 0.04]);
+        let mut over = filter("pf", 0.12, 1e8, 1e-4);
+        over.nees_tails = Some([0.01, 0.14]);
+        over.anis = Some(1.3);
+        let v = verdict(&[good, over], true, None, 900);
+        assert!(v.contains("State-consistent") && v.contains(": ekf."), "{v}");
+        assert!(v.contains("pf (NEES above its χ² band on 14 % of steps"), "{v}");
+        assert!(v.contains("Innovation-inconsistent") && v.contains("pf (ANIS 1.30"), "{v}");
+        assert!(v.contains("On this run, ekf is the most accurate"), "{v}");
     }
 
     #[test]

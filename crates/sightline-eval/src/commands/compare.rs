@@ -129,6 +129,7 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
                 } else {
                     None
                 },
+                nees_tails: if ok { m.nees_tails() } else { None },
                 anis_band: if ok {
                     m.anis_band().map(|b| b.to_array())
                 } else {
