@@ -92,7 +92,10 @@ impl Model for ThermalMass {
         U1
     }
     fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("block", "degC"), Variable::new("sensor", "degC")]
+        vec![
+            Variable::new("block", "degC"),
+            Variable::new("sensor", "degC"),
+        ]
     }
     fn measurements(&self) -> Vec<Variable> {
         vec![Variable::new("thermocouple", "degC")]
@@ -106,7 +109,13 @@ impl Model for ThermalMass {
     fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
         Vector1::new(x[1])
     }
-    fn process_noise(&self, _x: &Vector2<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> Matrix2<f64> {
+    fn process_noise(
+        &self,
+        _x: &Vector2<f64>,
+        _u: &Vector1<f64>,
+        _t: f64,
+        dt: f64,
+    ) -> Matrix2<f64> {
         // Unmodelled heat flows (draughts, heater ripple) on the block only.
         Matrix2::new(4e-4 * dt, 0.0, 0.0, 1e-6 * dt)
     }

@@ -70,12 +70,28 @@ fn compare_outputs_follow_the_contract() {
     let data = dir.path().join("pend.csv");
     let out = dir.path().join("out");
     expect(
-        &["simulate", "pendulum", "--steps", "120", "--seed", "5", "-o", s(&data)],
+        &[
+            "simulate",
+            "pendulum",
+            "--steps",
+            "120",
+            "--seed",
+            "5",
+            "-o",
+            s(&data),
+        ],
         0,
     );
     let stdout = expect(
         &[
-            "compare", "pendulum", s(&data), "-f", "ekf", "-f", "ukf:alpha=0.5,beta=2", "-o",
+            "compare",
+            "pendulum",
+            s(&data),
+            "-f",
+            "ekf",
+            "-f",
+            "ukf:alpha=0.5,beta=2",
+            "-o",
             s(&out),
         ],
         0,
@@ -120,7 +136,16 @@ fn compare_without_truth_judges_by_nis_whiteness_and_likelihood() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("pend.csv");
     expect(
-        &["simulate", "pendulum", "--steps", "300", "--seed", "9", "-o", s(&data)],
+        &[
+            "simulate",
+            "pendulum",
+            "--steps",
+            "300",
+            "--seed",
+            "9",
+            "-o",
+            s(&data),
+        ],
         0,
     );
     // Drop the x. columns, as in a real plant log.
@@ -138,7 +163,20 @@ fn compare_without_truth_judges_by_nis_whiteness_and_likelihood() {
     }
     w.flush().unwrap();
     let out = dir.path().join("out");
-    expect(&["compare", "pendulum", s(&log), "-f", "ekf", "-f", "ckf", "-o", s(&out)], 0);
+    expect(
+        &[
+            "compare",
+            "pendulum",
+            s(&log),
+            "-f",
+            "ekf",
+            "-f",
+            "ckf",
+            "-o",
+            s(&out),
+        ],
+        0,
+    );
     let summary = json(&out.join("summary.json"));
     assert_eq!(summary["truth"], false);
     let criteria = summary["criteria"].to_string();
@@ -160,17 +198,48 @@ fn bad_input_exits_2_with_a_located_message() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("bad.csv");
     std::fs::write(&data, "t,u.torque,y.position\n0,0,0.1\n0.01,0,oops\n").unwrap();
-    let out = sightline(&["compare", "pendulum", s(&data), "-o", s(&dir.path().join("o"))]);
+    let out = sightline(&[
+        "compare",
+        "pendulum",
+        s(&data),
+        "-o",
+        s(&dir.path().join("o")),
+    ]);
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("bad.csv:3:3:") && err.contains("oops"), "{err}");
-    assert!(!dir.path().join("o").exists(), "no partial output is left behind");
+    assert!(
+        err.contains("bad.csv:3:3:") && err.contains("oops"),
+        "{err}"
+    );
+    assert!(
+        !dir.path().join("o").exists(),
+        "no partial output is left behind"
+    );
     let out = sightline(&["compare", "nosuch", s(&data), "-o", "x"]);
     assert_eq!(out.status.code(), Some(2));
-    let out = sightline(&["compare", "pendulum", s(&data), "-f", "ukf:bogus=1", "-o", "x"]);
+    let out = sightline(&[
+        "compare",
+        "pendulum",
+        s(&data),
+        "-f",
+        "ukf:bogus=1",
+        "-o",
+        "x",
+    ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("bogus"));
-    let out = sightline(&["montecarlo", "cv", "--runs", "4", "--steps", "5", "--shard", "5/4", "-o", "x"]);
+    let out = sightline(&[
+        "montecarlo",
+        "cv",
+        "--runs",
+        "4",
+        "--steps",
+        "5",
+        "--shard",
+        "5/4",
+        "-o",
+        "x",
+    ]);
     assert_eq!(out.status.code(), Some(2));
 }
 
@@ -199,8 +268,20 @@ fn without_timing(mut v: Value) -> Value {
 fn merged_shards_equal_the_unsharded_campaign_exactly() {
     let dir = tempfile::tempdir().unwrap();
     let common = [
-        "montecarlo", "cv", "--runs", "23", "--steps", "40", "-f", "kf", "-f", "ukf", "-f",
-        "pf:particles=200", "--seed", "17",
+        "montecarlo",
+        "cv",
+        "--runs",
+        "23",
+        "--steps",
+        "40",
+        "-f",
+        "kf",
+        "-f",
+        "ukf",
+        "-f",
+        "pf:particles=200",
+        "--seed",
+        "17",
     ];
     let whole = dir.path().join("whole");
     let mut args = common.to_vec();
@@ -232,7 +313,10 @@ fn merged_shards_equal_the_unsharded_campaign_exactly() {
         for k in CAMPAIGN_FILTER_KEYS {
             assert!(f.get(k).is_some(), "campaign entry lacks '{k}'");
         }
-        assert_eq!(f["runs"].as_u64().unwrap() + f["failures"].as_u64().unwrap(), 23);
+        assert_eq!(
+            f["runs"].as_u64().unwrap() + f["failures"].as_u64().unwrap(),
+            23
+        );
         let band = f["anees_band"].as_array().unwrap();
         assert!(band[0].as_f64().unwrap() < 2.0 && band[1].as_f64().unwrap() > 2.0);
     }
@@ -243,9 +327,21 @@ fn merged_shards_equal_the_unsharded_campaign_exactly() {
     let pb = json(&merged.join("partial.json"));
     assert_eq!(without_timing(pa), without_timing(pb));
     // Incomplete or overlapping shard sets are refused.
-    let out = sightline(&["merge", s(&shards[0]), s(&shards[1]), "-o", s(&dir.path().join("m2"))]);
+    let out = sightline(&[
+        "merge",
+        s(&shards[0]),
+        s(&shards[1]),
+        "-o",
+        s(&dir.path().join("m2")),
+    ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("15..23"));
-    let out = sightline(&["merge", s(&shards[0]), s(&whole), "-o", s(&dir.path().join("m3"))]);
+    let out = sightline(&[
+        "merge",
+        s(&shards[0]),
+        s(&whole),
+        "-o",
+        s(&dir.path().join("m3")),
+    ]);
     assert_eq!(out.status.code(), Some(2));
 }

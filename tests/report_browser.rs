@@ -62,7 +62,10 @@ fn check_page(page: &Path, profile: &Path, expected_plots: &[&str]) {
     let html = std::fs::read_to_string(page).unwrap();
     let figures = html.matches("<figure class=\"plot\"").count();
     for id in expected_plots {
-        assert!(html.contains(&format!("data-plot=\"{id}\"")), "no plot '{id}'");
+        assert!(
+            html.contains(&format!("data-plot=\"{id}\"")),
+            "no plot '{id}'"
+        );
     }
     assert!(figures >= expected_plots.len());
     assert!(
@@ -70,7 +73,11 @@ fn check_page(page: &Path, profile: &Path, expected_plots: &[&str]) {
         "the report must not load anything from the network"
     );
     let dom = dump_dom(page, profile);
-    assert_eq!(attribute(&dom, "data-plots"), Some(figures), "the page script did not run");
+    assert_eq!(
+        attribute(&dom, "data-plots"),
+        Some(figures),
+        "the page script did not run"
+    );
     assert_eq!(
         attribute(&dom, "data-rendered"),
         Some(figures),
@@ -85,12 +92,35 @@ fn every_plot_renders_in_headless_chromium() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("pend.csv");
     expect(
-        &["simulate", "pendulum", "--steps", "400", "--seed", "3", "--dropout", "0.1", "-o", s(&data)],
+        &[
+            "simulate",
+            "pendulum",
+            "--steps",
+            "400",
+            "--seed",
+            "3",
+            "--dropout",
+            "0.1",
+            "-o",
+            s(&data),
+        ],
         0,
     );
     let compare = dir.path().join("compare");
     expect(
-        &["compare", "pendulum", s(&data), "-f", "ekf", "-f", "ukf", "-f", "pf:particles=300", "-o", s(&compare)],
+        &[
+            "compare",
+            "pendulum",
+            s(&data),
+            "-f",
+            "ekf",
+            "-f",
+            "ukf",
+            "-f",
+            "pf:particles=300",
+            "-o",
+            s(&compare),
+        ],
         0,
     );
     let profile = tempfile::tempdir().unwrap();
@@ -110,9 +140,26 @@ fn every_plot_renders_in_headless_chromium() {
     );
     let mc = dir.path().join("mc");
     expect(
-        &["montecarlo", "cv", "--runs", "12", "--steps", "60", "-f", "kf", "-f", "ckf", "-o", s(&mc)],
+        &[
+            "montecarlo",
+            "cv",
+            "--runs",
+            "12",
+            "--steps",
+            "60",
+            "-f",
+            "kf",
+            "-f",
+            "ckf",
+            "-o",
+            s(&mc),
+        ],
         0,
     );
     let profile = tempfile::tempdir().unwrap();
-    check_page(&mc.join("report.html"), profile.path(), &["nees", "nis", "rmse", "cost"]);
+    check_page(
+        &mc.join("report.html"),
+        profile.path(),
+        &["nees", "nis", "rmse", "cost"],
+    );
 }

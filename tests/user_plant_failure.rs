@@ -6,7 +6,7 @@
 //! and σ = 2 one point is negative and its √ is NaN at the first update, while the EKF linearises
 //! at the mean and stays at x > 0.
 
-use sightline::nalgebra::{Matrix1, U0, U1, Vector1, SVector};
+use sightline::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
 use sightline::{Gaussian, Model, Real, Variable};
 
 #[derive(Debug, Clone)]
@@ -37,13 +37,25 @@ impl Model for RootWalk {
     fn inputs(&self) -> Vec<Variable> {
         Vec::new()
     }
-    fn transition<S: Real>(&self, x: &Vector1<S>, _: &SVector<f64, 0>, _: f64, _: f64) -> Vector1<S> {
+    fn transition<S: Real>(
+        &self,
+        x: &Vector1<S>,
+        _: &SVector<f64, 0>,
+        _: f64,
+        _: f64,
+    ) -> Vector1<S> {
         *x
     }
     fn measure<S: Real>(&self, x: &Vector1<S>, _: &SVector<f64, 0>, _: f64) -> Vector1<S> {
         Vector1::new(x[0].sqrt())
     }
-    fn process_noise(&self, _: &Vector1<f64>, _: &SVector<f64, 0>, _: f64, dt: f64) -> Matrix1<f64> {
+    fn process_noise(
+        &self,
+        _: &Vector1<f64>,
+        _: &SVector<f64, 0>,
+        _: f64,
+        dt: f64,
+    ) -> Matrix1<f64> {
         Matrix1::new(1e-4 * dt)
     }
     fn measurement_noise(&self, _: f64) -> Matrix1<f64> {
@@ -85,7 +97,10 @@ fn a_failing_filter_is_marked_and_the_others_continue() {
     ];
     let err = sightline::cli::run(args, &plants).unwrap_err();
     assert_eq!(err.exit_code(), 1, "{err}");
-    assert!(err.to_string().contains("1 of 2 filters failed (ckf)"), "{err}");
+    assert!(
+        err.to_string().contains("1 of 2 filters failed (ckf)"),
+        "{err}"
+    );
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
     let ckf = &summary["filters"][0];
@@ -99,8 +114,14 @@ fn a_failing_filter_is_marked_and_the_others_continue() {
     // The EKF converges onto x = 1 (√1 = 1 measured fifty times).
     assert!(ekf["rmse"]["level"].as_f64().unwrap() < 0.5);
     let estimates = std::fs::read_to_string(out.join("estimates.csv")).unwrap();
-    assert_eq!(estimates.lines().filter(|l| l.starts_with("ekf,")).count(), 50);
-    assert_eq!(estimates.lines().filter(|l| l.starts_with("ckf,")).count(), 0);
+    assert_eq!(
+        estimates.lines().filter(|l| l.starts_with("ekf,")).count(),
+        50
+    );
+    assert_eq!(
+        estimates.lines().filter(|l| l.starts_with("ckf,")).count(),
+        0
+    );
     assert!(out.join("report.html").exists());
     assert!(summary["verdict"].as_str().unwrap().contains("ckf failed"));
 }

@@ -470,7 +470,9 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
             }
         }
         if part.pcrlb_rmse_all != total.pcrlb_rmse_all {
-            return Err(Error::Usage("merge: the shards disagree on the PCRLB".into()));
+            return Err(Error::Usage(
+                "merge: the shards disagree on the PCRLB".into(),
+            ));
         }
         for (a, b) in total.filters.iter_mut().zip(&part.filters) {
             a.merge(b)?;

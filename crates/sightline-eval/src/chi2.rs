@@ -24,7 +24,7 @@ pub const UPPER_TAIL: f64 = 0.975;
 /// assert!(quantile(0.0, 0.5).is_none());
 /// ```
 pub fn quantile(dof: f64, p: f64) -> Option<f64> {
-    if !(dof.is_finite() && dof > 0.0) || !(p > 0.0 && p < 1.0) {
+    if !(dof.is_finite() && dof > 0.0 && p > 0.0 && p < 1.0) {
         return None;
     }
     let dist = ChiSquared::new(dof).ok()?;

@@ -518,7 +518,11 @@ mod tests {
         // Every other sample missing: lag-1 pairs never form, lag 2 pairs do.
         let mut w = Whiteness::new(1, 2);
         for k in 0..100 {
-            let v = if k % 2 == 0 { (k as f64).sin() } else { f64::NAN };
+            let v = if k % 2 == 0 {
+                (k as f64).sin()
+            } else {
+                f64::NAN
+            };
             w.push_standardised(&[v]);
         }
         let s = w.summary();

@@ -61,6 +61,9 @@ pub struct Area {
     pub points: Vec<(f64, f64, f64)>,
 }
 
+/// Scatter dots: legend name, colour, points.
+pub type Dots = (String, RGBColor, Vec<(f64, f64)>);
+
 /// A line plot with optional bands and dots.
 #[derive(Debug, Clone)]
 pub struct LinePlot {
@@ -77,7 +80,7 @@ pub struct LinePlot {
     /// Lines.
     pub lines: Vec<Line>,
     /// Scatter dots (name, colour, points).
-    pub dots: Vec<(String, RGBColor, Vec<(f64, f64)>)>,
+    pub dots: Vec<Dots>,
     /// Plot log₁₀ of the values (for NEES/NIS spanning decades).
     pub log_y: bool,
     /// Caption under the plot.
@@ -237,7 +240,10 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         }
         legend = true;
         chart
-            .draw_series(pts.into_iter().map(|p| Circle::new(p, 2, c.mix(0.5).filled())))
+            .draw_series(
+                pts.into_iter()
+                    .map(|p| Circle::new(p, 2, c.mix(0.5).filled())),
+            )
             .map_err(plot_error)?
             .label(name.as_str())
             .legend(move |(x, y)| Circle::new((x + 8, y), 3, c.filled()));
@@ -305,17 +311,24 @@ fn draw_bars(plot: &BarPlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Resul
         .draw()
         .map_err(plot_error)?;
     chart
-        .draw_series(plot.bars.iter().enumerate().filter(|(_, b)| b.1.is_finite()).map(
-            |(i, b)| {
-                let i = i as i32;
-                let mut r = Rectangle::new(
-                    [(SegmentValue::Exact(i), 0.0), (SegmentValue::Exact(i + 1), b.1)],
-                    b.3.mix(0.85).filled(),
-                );
-                r.set_margin(0, 0, 12, 12);
-                r
-            },
-        ))
+        .draw_series(
+            plot.bars
+                .iter()
+                .enumerate()
+                .filter(|(_, b)| b.1.is_finite())
+                .map(|(i, b)| {
+                    let i = i as i32;
+                    let mut r = Rectangle::new(
+                        [
+                            (SegmentValue::Exact(i), 0.0),
+                            (SegmentValue::Exact(i + 1), b.1),
+                        ],
+                        b.3.mix(0.85).filled(),
+                    );
+                    r.set_margin(0, 0, 12, 12);
+                    r
+                }),
+        )
         .map_err(plot_error)?;
     chart
         .draw_series(
@@ -465,7 +478,12 @@ pub fn terminal_table(summary: &Summary) -> String {
 }
 
 /// The full report page.
-pub fn render_html(title: &str, summary: &Summary, plots: &[Plot], notes: &[String]) -> Result<String> {
+pub fn render_html(
+    title: &str,
+    summary: &Summary,
+    plots: &[Plot],
+    notes: &[String],
+) -> Result<String> {
     let mut html = String::with_capacity(64 * 1024 + plots.len() * 128 * 1024);
     html.push_str("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">");
     html.push_str(&format!("<title>{}</title>", escape(title)));
@@ -587,9 +605,12 @@ pub fn compare_plots(
             plot.dots.push((
                 format!("y.{}", measurements[j].name),
                 RGBColor(90, 90, 90),
-                (0..rows).map(|r| (series.t[r], series.y[r * m + j])).collect(),
+                (0..rows)
+                    .map(|r| (series.t[r], series.y[r * m + j]))
+                    .collect(),
             ));
-            plot.caption.push_str(" Dots: the measurement of the same quantity.");
+            plot.caption
+                .push_str(" Dots: the measurement of the same quantity.");
         }
         for f in 0..nf {
             let at = |r: usize| (r * nf + f) * n + i;
@@ -607,7 +628,9 @@ pub fn compare_plots(
             plot.lines.push(Line {
                 name: labels.get(f).copied().unwrap_or("").to_string(),
                 colour: colour(f),
-                points: (0..rows).map(|r| (series.t[r], series.mean[at(r)])).collect(),
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.mean[at(r)]))
+                    .collect(),
                 width: 1,
             });
         }
@@ -615,7 +638,9 @@ pub fn compare_plots(
             plot.lines.push(Line {
                 name: "truth".into(),
                 colour: BLACK,
-                points: (0..rows).map(|r| (series.t[r], series.truth[r * n + i])).collect(),
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.truth[r * n + i]))
+                    .collect(),
                 width: 2,
             });
         }
@@ -635,7 +660,9 @@ pub fn compare_plots(
             dots: vec![(
                 format!("y.{}", meas.name),
                 RGBColor(90, 90, 90),
-                (0..rows).map(|r| (series.t[r], series.y[r * m + j])).collect(),
+                (0..rows)
+                    .map(|r| (series.t[r], series.y[r * m + j]))
+                    .collect(),
             )],
             log_y: false,
             caption: format!(
@@ -844,7 +871,10 @@ mod tests {
             id: "b".into(),
             title: "b".into(),
             y_label: "v".into(),
-            bars: vec![("kf".into(), 1.0, Some(0.1), RED), ("ukf".into(), 2.0, None, BLUE)],
+            bars: vec![
+                ("kf".into(), 1.0, Some(0.1), RED),
+                ("ukf".into(), 2.0, None, BLUE),
+            ],
             caption: String::new(),
         });
         let svg = render_svg(&bars).unwrap();

@@ -201,9 +201,7 @@ impl<W: std::io::Write> Observer for EstimatesWriter<W> {
         for &s in sd {
             self.number(s)?;
         }
-        self.csv
-            .write_record(None::<&[u8]>)
-            .map_err(csv_write)
+        self.csv.write_record(None::<&[u8]>).map_err(csv_write)
     }
 }
 
@@ -418,8 +416,8 @@ pub fn run(
             z: vec![0.0; n],
         })
         .collect();
-    let mut series = (config.series_points > 0)
-        .then(|| Series::new(n, m, lanes.len(), config.series_points));
+    let mut series =
+        (config.series_points > 0).then(|| Series::new(n, m, lanes.len(), config.series_points));
     let mut record = Record::empty();
     let mut previous: Option<(f64, Vec<f64>)> = None;
     let mut k: u64 = 0;

@@ -201,7 +201,8 @@ pub fn criteria(truth: bool, campaign: bool) -> Vec<String> {
     if truth {
         c.push("accuracy: RMSE against the true state".to_string());
         c.push(if campaign {
-            "state consistency: ANEES over runs against χ²(M·n)/M, share of steps inside".to_string()
+            "state consistency: ANEES over runs against χ²(M·n)/M, share of steps inside"
+                .to_string()
         } else {
             "state consistency: share of steps with NEES below / above the χ²(n) band".to_string()
         });

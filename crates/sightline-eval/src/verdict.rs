@@ -128,7 +128,11 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
             .iter()
             .copied()
             .filter(|f| f.rmse_all.is_some())
-            .min_by(|a, b| a.rmse_all.partial_cmp(&b.rmse_all).unwrap_or(std::cmp::Ordering::Equal));
+            .min_by(|a, b| {
+                a.rmse_all
+                    .partial_cmp(&b.rmse_all)
+                    .unwrap_or(std::cmp::Ordering::Equal)
+            });
         if let Some(best) = best_accuracy {
             let r = best.rmse_all.unwrap_or(f64::NAN);
             let close: Vec<&FilterSummary> = ok
@@ -220,16 +224,18 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
     for f in &ok {
         match innovation_consistency(f) {
             Consistency::Consistent => nis_ok.push(*f),
-            c @ (Consistency::OverConfident | Consistency::UnderConfident) => nis_bad.push(format!(
-                "{} (ANIS {}, {})",
-                f.label,
-                band_text(f.anis, f.anis_band),
-                if c == Consistency::OverConfident {
-                    "innovations larger than predicted"
-                } else {
-                    "innovations smaller than predicted"
-                }
-            )),
+            c @ (Consistency::OverConfident | Consistency::UnderConfident) => {
+                nis_bad.push(format!(
+                    "{} (ANIS {}, {})",
+                    f.label,
+                    band_text(f.anis, f.anis_band),
+                    if c == Consistency::OverConfident {
+                        "innovations larger than predicted"
+                    } else {
+                        "innovations smaller than predicted"
+                    }
+                ))
+            }
             Consistency::Unknown => {}
         }
     }
@@ -305,7 +311,11 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
         if ok.len() > 1 {
             lines.push(format!(
                 "Best predictive fit (highest log-likelihood{}): {} ({}).",
-                if runs.is_some() { ", mean over runs" } else { "" },
+                if runs.is_some() {
+                    ", mean over runs"
+                } else {
+                    ""
+                },
                 f.label,
                 sig(f.log_likelihood.unwrap_or(f64::NAN), 6)
             ));
@@ -327,16 +337,17 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
             .iter()
             .copied()
             .filter(|f| f.rmse_all.is_some())
-            .min_by(|a, b| a.rmse_all.partial_cmp(&b.rmse_all).unwrap_or(std::cmp::Ordering::Equal))
-    } else {
-        consistent
-            .iter()
-            .copied()
-            .max_by(|a, b| {
-                a.log_likelihood
-                    .partial_cmp(&b.log_likelihood)
+            .min_by(|a, b| {
+                a.rmse_all
+                    .partial_cmp(&b.rmse_all)
                     .unwrap_or(std::cmp::Ordering::Equal)
             })
+    } else {
+        consistent.iter().copied().max_by(|a, b| {
+            a.log_likelihood
+                .partial_cmp(&b.log_likelihood)
+                .unwrap_or(std::cmp::Ordering::Equal)
+        })
     };
     match pick {
         Some(p) => {
@@ -442,10 +453,16 @@ mod tests {
         );
         assert!(v.contains("Most accurate: ukf"), "{v}");
         assert!(v.contains("Within 5 % of it: ekf"), "{v}");
-        assert!(v.contains("Over-confident") && v.contains("ckf (ANEES 5.00"), "{v}");
+        assert!(
+            v.contains("Over-confident") && v.contains("ckf (ANEES 5.00"),
+            "{v}"
+        );
         assert!(v.contains("Under-confident") && v.contains("enkf"), "{v}");
         assert!(v.contains("pf failed: particle collapse"), "{v}");
-        assert!(v.contains("ekf is within 5 % of its accuracy at 4.0× lower cost"), "{v}");
+        assert!(
+            v.contains("ekf is within 5 % of its accuracy at 4.0× lower cost"),
+            "{v}"
+        );
         assert!(v.contains("not a universal ranking"), "{v}");
     }
 
@@ -457,9 +474,18 @@ mod tests {
         over.nees_tails = Some([0.01, 0.14]);
         over.anis = Some(1.3);
         let v = verdict(&[good, over], true, None, 900);
-        assert!(v.contains("State-consistent") && v.contains(": ekf."), "{v}");
-        assert!(v.contains("pf (NEES above its χ² band on 14 % of steps"), "{v}");
-        assert!(v.contains("Innovation-inconsistent") && v.contains("pf (ANIS 1.30"), "{v}");
+        assert!(
+            v.contains("State-consistent") && v.contains(": ekf."),
+            "{v}"
+        );
+        assert!(
+            v.contains("pf (NEES above its χ² band on 14 % of steps"),
+            "{v}"
+        );
+        assert!(
+            v.contains("Innovation-inconsistent") && v.contains("pf (ANIS 1.30"),
+            "{v}"
+        );
         assert!(v.contains("On this run, ekf is the most accurate"), "{v}");
     }
 

@@ -34,18 +34,30 @@ fn kalman_filter_anees_is_inside_its_band_on_cv() {
     assert_eq!(kf.failures, Some(0));
     let [lo, hi] = kf.anees_band.unwrap();
     // χ²(400)/200 band: about [1.73, 2.28] (closed-form normal approximation 2 ± 1.96·√(4/200)).
-    assert!((lo - 1.73).abs() < 0.02 && (hi - 2.28).abs() < 0.02, "[{lo}, {hi}]");
+    assert!(
+        (lo - 1.73).abs() < 0.02 && (hi - 2.28).abs() < 0.02,
+        "[{lo}, {hi}]"
+    );
     let anees = kf.anees.unwrap();
-    assert!(lo <= anees && anees <= hi, "ANEES {anees} outside [{lo}, {hi}]");
+    assert!(
+        lo <= anees && anees <= hi,
+        "ANEES {anees} outside [{lo}, {hi}]"
+    );
     // "About 95 %" of the steps: with 300 steps the binomial standard deviation is 1.3 %, and
     // neighbouring steps are correlated, so ±5 % (common practice for such a check).
     let share = kf.nees_in_band.unwrap();
-    assert!((0.90..=1.0).contains(&share), "share of steps in band {share}");
+    assert!(
+        (0.90..=1.0).contains(&share),
+        "share of steps in band {share}"
+    );
     let nis_share = kf.nis_in_band.unwrap();
     assert!((0.90..=1.0).contains(&nis_share), "NIS share {nis_share}");
     let [nlo, nhi] = kf.anis_band.unwrap();
     let anis = kf.anis.unwrap();
-    assert!(nlo <= anis && anis <= nhi, "ANIS {anis} outside [{nlo}, {nhi}]");
+    assert!(
+        nlo <= anis && anis <= nhi,
+        "ANIS {anis} outside [{nlo}, {nhi}]"
+    );
 }
 
 #[test]
@@ -58,7 +70,9 @@ fn a_kalman_filter_with_ten_times_the_process_noise_is_under_confident() {
     let mut nees_sum = 0.0;
     let mut count = 0.0;
     for i in 0..50 {
-        let data = truth.simulate(STEPS as usize, i, &SimOptions::default()).unwrap();
+        let data = truth
+            .simulate(STEPS as usize, i, &SimOptions::default())
+            .unwrap();
         let result = compare(
             mistuned.as_ref(),
             &specs,
@@ -72,5 +86,9 @@ fn a_kalman_filter_with_ten_times_the_process_noise_is_under_confident() {
     }
     let anees = nees_sum / count;
     let band = chi2::average_band(2, 50).unwrap();
-    assert!(anees < band.lo, "ANEES {anees} should fall below {}", band.lo);
+    assert!(
+        anees < band.lo,
+        "ANEES {anees} should fall below {}",
+        band.lo
+    );
 }

@@ -83,12 +83,9 @@ impl Comparison {
     /// The report page.
     pub fn report_html(&self, plant: &dyn AnyPlant, title: &str) -> Result<String> {
         let plots = match &self.series {
-            Some(s) => report::compare_plots(
-                &self.summary,
-                s,
-                &plant.states(),
-                &plant.measurements(),
-            ),
+            Some(s) => {
+                report::compare_plots(&self.summary, s, &plant.states(), &plant.measurements())
+            }
             None => report::bar_plots(&self.summary),
         };
         report::render_html(title, &self.summary, &plots, &self.notes)

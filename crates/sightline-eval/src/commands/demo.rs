@@ -50,7 +50,13 @@ pub const SCENARIO: Scenario = Scenario {
     steps: 900,
     seed: 2024,
     outage: (&["level2"], 300.0, 360.0),
-    filters: &["ekf", "ukf", "ckf", "pf:particles=2000,roughening=0.2", "enkf:members=200"],
+    filters: &[
+        "ekf",
+        "ukf",
+        "ckf",
+        "pf:particles=2000,roughening=0.2",
+        "enkf:members=200",
+    ],
     story: "Night-time irrigation: at dusk two pumps (3 V each) start filling a cascade of four \
             nearly empty reservoirs, a quadruple-tank process. Only the two lower levels are \
             measured (1 s samples); the upper levels h3, h4 must be estimated. From t = 300 s \
@@ -83,7 +89,11 @@ pub fn scenario_data(
         .filter(|(_, n)| names.contains(&n.as_str()))
         .map(|(i, _)| i)
         .collect();
-    for r in data.records.iter_mut().filter(|r| r.t >= start && r.t < end) {
+    for r in data
+        .records
+        .iter_mut()
+        .filter(|r| r.t >= start && r.t < end)
+    {
         for &j in &columns {
             r.y[j] = f64::NAN;
         }

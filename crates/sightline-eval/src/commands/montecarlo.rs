@@ -10,10 +10,10 @@ use crate::campaign::{self, CampaignSpec, Shard, Totals};
 use crate::cli::{PlantArgs, configure};
 use crate::error::{Error, Result};
 use crate::output::OutputDir;
+use crate::plant::AnyPlant;
 use crate::report::{self, Area, Line, LinePlot, Plot, colour};
 use crate::runner;
 use crate::summary::Summary;
-use crate::plant::AnyPlant;
 
 /// Arguments of `montecarlo`.
 #[derive(Debug, Clone)]

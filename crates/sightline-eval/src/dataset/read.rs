@@ -171,10 +171,7 @@ impl ColumnMap {
             if let Some(first) = *slot {
                 return Err(at(
                     column,
-                    format!(
-                        "column '{name}' appears twice (also column {})",
-                        first + 1
-                    ),
+                    format!("column '{name}' appears twice (also column {})", first + 1),
                 ));
             }
             *slot = Some(field);
@@ -697,9 +694,15 @@ mod tests {
         let e = err("t,u.torque,y.position,y.speed\n0,0,1,2\n0.1,0,abc,2\n");
         assert!(e.starts_with("data.csv:3:3:") && e.contains("abc"), "{e}");
         let e = err("t,u.torque,y.position,y.speed\n0,0,1,2\n0.1,0,1\n");
-        assert!(e.starts_with("data.csv:3:4:") && e.contains("3 fields"), "{e}");
+        assert!(
+            e.starts_with("data.csv:3:4:") && e.contains("3 fields"),
+            "{e}"
+        );
         let e = err("t,u.torque,y.position,y.speed\n0,0,1,2\n0,0,1,2\n");
-        assert!(e.starts_with("data.csv:3:1:") && e.contains("increas"), "{e}");
+        assert!(
+            e.starts_with("data.csv:3:1:") && e.contains("increas"),
+            "{e}"
+        );
         let e = err("t,u.torque,y.position,y.height\n");
         assert!(
             e.starts_with("data.csv:1:4:") && e.contains("y.position, y.speed"),
@@ -728,7 +731,12 @@ mod tests {
     fn an_absent_input_column_uses_the_set_constant() {
         let mut s = schema();
         s.input_fallback = vec![Some(0.75)];
-        let d = read("t,y.position,y.speed\n0,1,2\n1,1,2\n", &s, ReadOptions::default()).unwrap();
+        let d = read(
+            "t,y.position,y.speed\n0,1,2\n1,1,2\n",
+            &s,
+            ReadOptions::default(),
+        )
+        .unwrap();
         assert!(d.records.iter().all(|r| r.u == vec![0.75]));
     }
 
