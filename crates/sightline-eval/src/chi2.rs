@@ -18,9 +18,10 @@ pub const UPPER_TAIL: f64 = 0.975;
 ///
 /// ```
 /// use sightline_eval::chi2::quantile;
-/// // χ²(1) 97.5 % point is 1.96² (standard normal 97.5 % point squared; closed form).
-/// let q = quantile(1.0, 0.975).unwrap();
-/// assert!((q - 1.959963984540054_f64.powi(2)).abs() < 1e-9);
+/// // χ²(1) 95 % point: P(Z² ≤ z²) = P(|Z| ≤ z) = 0.95 at the standard normal 97.5 % point
+/// // z = 1.959964 (closed form).
+/// let q = quantile(1.0, 0.95).unwrap();
+/// assert!((q - 1.959963984540054_f64.powi(2)).abs() < 1e-8);
 /// assert!(quantile(0.0, 0.5).is_none());
 /// ```
 pub fn quantile(dof: f64, p: f64) -> Option<f64> {

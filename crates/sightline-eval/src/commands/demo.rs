@@ -128,8 +128,13 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
     let data_path: PathBuf = dir.join("data.csv");
     crate::output::write_file(&data_path, |w| write_csv(&data, w))?;
     print_result(&comparison.summary, &dir, &comparison.notes);
+    let sets: String = scenario
+        .set
+        .iter()
+        .map(|(n, v)| format!(" --set {n}={v}"))
+        .collect();
     println!(
-        "data: {} (rerun: sightline compare {} {} -o DIR)",
+        "data: {} (rerun: sightline compare {}{sets} {} -o DIR)",
         data_path.display(),
         scenario.model,
         data_path.display()
