@@ -1,7 +1,7 @@
 //! Small dense linear-algebra helpers shared by the filters. None allocates for static sizes.
 
 use nalgebra::allocator::Allocator;
-use nalgebra::{Cholesky, DefaultAllocator, Dim, OMatrix};
+use nalgebra::{Cholesky, DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 
 use crate::error::NumericError;
 
@@ -46,12 +46,271 @@ pub fn ensure_finite<'a>(
     }
 }
 
-/// Smallest eigenvalue of a symmetric matrix (for soundness checks and covariance repair).
-pub fn min_eigenvalue<N: Dim>(p: &OMatrix<f64, N, N>) -> f64
+/// Lower-triangular `L` with `L Lᵀ = A` for a symmetric positive *semi*-definite `A`.
+///
+/// The Cholesky–Banachiewicz recursion (Golub & Van Loan, *Matrix Computations*, 4th ed., 2013,
+/// Alg. 4.2.1) with zero pivots allowed: a pivot within `16·n·ε·Aⱼⱼ` of zero (the rounding
+/// level of its own column) gives a zero column, as it must for a semi-definite matrix (whose
+/// Schur complement then has a zero column too, up to rounding — checked by Cauchy–Schwarz,
+/// |aᵢⱼ|² ≤ aᵢᵢ aⱼⱼ). Process noise of a plant
+/// with noise-free states (Q = 0 for a random constant) is semi-definite, so square-root filters
+/// need this rather than a strict Cholesky factorisation. Does not allocate for static sizes.
+///
+/// ```
+/// use sightline_core::linalg::semidefinite_factor;
+/// use sightline_core::nalgebra::Matrix2;
+/// let q = Matrix2::new(0.0, 0.0, 0.0, 4.0);
+/// let l = semidefinite_factor(&q, "Q").unwrap();
+/// assert_eq!(l, Matrix2::new(0.0, 0.0, 0.0, 2.0));
+/// assert!(semidefinite_factor(&Matrix2::new(1.0, 2.0, 2.0, 1.0), "Q").is_err());
+/// ```
+pub fn semidefinite_factor<N: Dim>(
+    a: &OMatrix<f64, N, N>,
+    quantity: &'static str,
+) -> Result<OMatrix<f64, N, N>, NumericError>
 where
-    N: nalgebra::DimSub<nalgebra::U1>,
+    DefaultAllocator: Allocator<N, N>,
+{
+    ensure_finite(a.iter(), quantity)?;
+    let (dim, _) = a.shape_generic();
+    let n = dim.value();
+    let rounding = 16.0 * n as f64 * f64::EPSILON;
+    let not_pd = NumericError::NotPositiveDefinite { quantity };
+    let mut l = OMatrix::<f64, N, N>::zeros_generic(dim, dim);
+    for j in 0..n {
+        let tol = rounding * a[(j, j)].abs();
+        let mut pivot = a[(j, j)];
+        for k in 0..j {
+            pivot -= l[(j, k)] * l[(j, k)];
+        }
+        if pivot < -tol {
+            return Err(not_pd);
+        }
+        let zero_pivot = pivot <= tol;
+        let diag = if zero_pivot { 0.0 } else { pivot.sqrt() };
+        l[(j, j)] = diag;
+        for i in (j + 1)..n {
+            let mut v = a[(i, j)];
+            for k in 0..j {
+                v -= l[(i, k)] * l[(j, k)];
+            }
+            if zero_pivot {
+                // Semi-definite: the remaining entries of this column are rounding noise.
+                if v.abs() > 16.0 * (tol * a[(i, i)].abs()).sqrt() {
+                    return Err(not_pd);
+                }
+            } else {
+                l[(i, j)] = v / diag;
+            }
+        }
+    }
+    Ok(l)
+}
+
+/// Replaces the lower-triangular factor `l` of `P = L Lᵀ` by that of `P + x xᵀ`
+/// (`downdate = false`) or `P − x xᵀ` (`downdate = true`), in O(n²) and in place; `x` is used as
+/// workspace and overwritten.
+///
+/// The update applies Givens rotations, the downdate hyperbolic rotations, column by column
+/// (the LINPACK `dchud`/`dchdd` scheme; Golub & Van Loan, *Matrix Computations*, 4th ed., 2013,
+/// §6.5.4). The diagonal of `l` must be non-negative and stays so. A downdate whose result is not
+/// positive-definite (a pivot `lₖₖ² − xₖ² ≤ 0` with `xₖ ≠ 0`) returns
+/// [`NumericError::NotPositiveDefinite`] naming `quantity`; it never yields NaN.
+///
+/// ```
+/// use sightline_core::linalg::cholesky_rank_one;
+/// use sightline_core::nalgebra::{Matrix2, Vector2};
+/// let mut l = Matrix2::new(2.0, 0.0, 1.0, 1.0);
+/// let mut x = Vector2::new(1.0, 1.0);
+/// cholesky_rank_one(&mut l, &mut x, false, "P").unwrap();
+/// let p = Matrix2::new(4.0, 2.0, 2.0, 2.0) + Matrix2::new(1.0, 1.0, 1.0, 1.0);
+/// assert!((l * l.transpose() - p).abs().max() < 1e-14);
+/// let mut too_big = Vector2::new(3.0, 0.0);
+/// assert!(cholesky_rank_one(&mut l, &mut too_big, true, "P").is_err());
+/// ```
+pub fn cholesky_rank_one<N: Dim>(
+    l: &mut OMatrix<f64, N, N>,
+    x: &mut OVector<f64, N>,
+    downdate: bool,
+    quantity: &'static str,
+) -> Result<(), NumericError>
+where
+    DefaultAllocator: Allocator<N, N> + Allocator<N>,
+{
+    ensure_finite(x.iter(), quantity)?;
+    let n = x.len();
+    for k in 0..n {
+        let a = l[(k, k)];
+        let b = x[k];
+        if b == 0.0 {
+            continue;
+        }
+        if downdate {
+            let r2 = (a - b) * (a + b);
+            let definite = r2 > 0.0 && a > 0.0;
+            if !definite {
+                return Err(NumericError::NotPositiveDefinite { quantity });
+            }
+            let r = r2.sqrt();
+            let (c, s) = (r / a, b / a);
+            l[(k, k)] = r;
+            for i in (k + 1)..n {
+                let lik = (l[(i, k)] - s * x[i]) / c;
+                l[(i, k)] = lik;
+                x[i] = c * x[i] - s * lik;
+            }
+        } else {
+            let r = a.hypot(b);
+            let (c, s) = (a / r, b / r);
+            l[(k, k)] = r;
+            for i in (k + 1)..n {
+                let (lik, xi) = (l[(i, k)], x[i]);
+                l[(i, k)] = c * lik + s * xi;
+                x[i] = c * xi - s * lik;
+            }
+        }
+    }
+    ensure_finite(l.iter(), quantity)
+}
+
+/// Lower-triangular `L` (non-negative diagonal) with `L Lᵀ = A Aᵀ` for a wide `r × c` matrix `A`
+/// (`c ≥ r`), by Householder reflections applied from the right — the LQ factorisation, i.e. the
+/// QR factorisation of `Aᵀ` transposed (Golub & Van Loan, *Matrix Computations*, 4th ed., 2013,
+/// §5.2.2). This is the "qr" step of square-root filters. Works in place on `a` (its contents are
+/// destroyed), so a buffer allocated once serves every step; the result does not allocate for a
+/// static row count.
+///
+/// ```
+/// use sightline_core::linalg::lower_triangular_factor;
+/// use sightline_core::nalgebra::{Dyn, Matrix2, OMatrix, U2};
+/// let mut a = OMatrix::<f64, U2, Dyn>::from_row_slice_generic(U2, Dyn(3), &[1.0, 2.0, 3.0, 4.0, 5.0, 6.0]);
+/// let gram = &a * a.transpose();
+/// let l = lower_triangular_factor(&mut a);
+/// assert_eq!(l[(0, 1)], 0.0);
+/// assert!((l * l.transpose() - gram).abs().max() < 1e-12);
+/// ```
+pub fn lower_triangular_factor<R: Dim>(a: &mut OMatrix<f64, R, Dyn>) -> OMatrix<f64, R, R>
+where
+    DefaultAllocator: Allocator<R, Dyn> + Allocator<R, R>,
+{
+    let (rows, _) = a.shape_generic();
+    let r = rows.value();
+    let c = a.ncols();
+    for i in 0..r.min(c) {
+        let x0 = a[(i, i)];
+        let tail2: f64 = ((i + 1)..c).map(|k| a[(i, k)] * a[(i, k)]).sum();
+        if tail2 == 0.0 {
+            continue;
+        }
+        let norm = (x0 * x0 + tail2).sqrt();
+        // Reflect onto −sign(x0)·‖x‖ to avoid cancellation in v0 = x0 − α.
+        let alpha = if x0 > 0.0 { -norm } else { norm };
+        let v0 = x0 - alpha;
+        let beta = 2.0 / (v0 * v0 + tail2);
+        for j in (i + 1)..r {
+            let mut dot = a[(j, i)] * v0;
+            for k in (i + 1)..c {
+                dot += a[(j, k)] * a[(i, k)];
+            }
+            let f = beta * dot;
+            a[(j, i)] -= f * v0;
+            for k in (i + 1)..c {
+                let vk = a[(i, k)];
+                a[(j, k)] -= f * vk;
+            }
+        }
+        a[(i, i)] = alpha;
+        for k in (i + 1)..c {
+            a[(i, k)] = 0.0;
+        }
+    }
+    let mut l = OMatrix::<f64, R, R>::zeros_generic(rows, rows);
+    for j in 0..r.min(c) {
+        // Flipping a column's sign leaves L Lᵀ unchanged; it makes the diagonal non-negative.
+        let sign = if a[(j, j)] < 0.0 { -1.0 } else { 1.0 };
+        for i in j..r {
+            l[(i, j)] = sign * a[(i, j)];
+        }
+    }
+    l
+}
+
+/// Smallest eigenvalue of a symmetric matrix (for soundness checks and covariance repair).
+pub fn min_eigenvalue<N>(p: &OMatrix<f64, N, N>) -> f64
+where
+    N: Dim + nalgebra::DimSub<nalgebra::U1>,
     DefaultAllocator:
         Allocator<N, N> + Allocator<N> + Allocator<<N as nalgebra::DimSub<nalgebra::U1>>::Output>,
 {
     p.clone().symmetric_eigenvalues().min()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use nalgebra::{Matrix4, U4, Vector4};
+
+    /// A fixed, well-conditioned test matrix (entries of our own).
+    fn sample() -> OMatrix<f64, U4, Dyn> {
+        OMatrix::<f64, U4, Dyn>::from_fn_generic(U4, Dyn(9), |i, j| {
+            ((i * 7 + j * 3) % 11) as f64 / 5.0 - 1.0 + if i == j { 2.0 } else { 0.0 }
+        })
+    }
+
+    #[test]
+    fn lq_factor_is_the_cholesky_factor_of_the_gram_matrix() {
+        // The Cholesky factor with positive diagonal is unique, so LQ must reproduce it.
+        let mut a = sample();
+        let gram: Matrix4<f64> = &a * a.transpose();
+        let l = lower_triangular_factor(&mut a);
+        let reference = Cholesky::new(gram).unwrap().l();
+        assert!((l - reference).abs().max() < 1e-12, "{l} vs {reference}");
+    }
+
+    #[test]
+    fn rank_one_update_and_downdate_match_refactorisation() {
+        let mut a = sample();
+        let p: Matrix4<f64> = &a * a.transpose();
+        let mut l = lower_triangular_factor(&mut a);
+        let x = Vector4::new(0.3, -1.2, 0.5, 2.0);
+        let mut work = x;
+        cholesky_rank_one(&mut l, &mut work, false, "P").unwrap();
+        let up = Cholesky::new(p + x * x.transpose()).unwrap().l();
+        assert!((l - up).abs().max() < 1e-12);
+        let mut work = x;
+        cholesky_rank_one(&mut l, &mut work, true, "P").unwrap();
+        let back = Cholesky::new(p).unwrap().l();
+        assert!((l - back).abs().max() < 1e-11);
+        // Removing more than is there must fail with a named error, not NaN.
+        let mut big = x * 100.0;
+        let e = cholesky_rank_one(&mut l, &mut big, true, "test covariance").unwrap_err();
+        assert_eq!(
+            e,
+            NumericError::NotPositiveDefinite {
+                quantity: "test covariance"
+            }
+        );
+    }
+
+    #[test]
+    fn semidefinite_factor_handles_zero_pivots() {
+        let g = OMatrix::<f64, U4, U4>::from_row_slice(&[
+            1.0, 0.0, 0.0, 0.0, //
+            2.0, 0.0, 0.0, 0.0, //
+            0.5, 0.0, 3.0, 0.0, //
+            1.0, 0.0, 1.0, 0.0,
+        ]);
+        let q = g * g.transpose();
+        let l = semidefinite_factor(&q, "Q").unwrap();
+        assert!((l * l.transpose() - q).abs().max() < 1e-12);
+        let strict = semidefinite_factor(&Matrix4::<f64>::identity(), "Q").unwrap();
+        assert_eq!(strict, Matrix4::identity());
+        // Tolerances are per column: a tiny variance next to a huge one is kept, not zeroed.
+        let wide = Matrix4::from_diagonal(&Vector4::new(1e6, 1e-12, 1.0, 0.0));
+        let l = semidefinite_factor(&wide, "Q").unwrap();
+        assert!((l[(1, 1)] - 1e-6).abs() < 1e-20 && l[(3, 3)] == 0.0);
+        let mut indefinite = Matrix4::<f64>::identity();
+        indefinite[(3, 3)] = -1e-3;
+        assert!(semidefinite_factor(&indefinite, "Q").is_err());
+    }
 }

@@ -79,7 +79,8 @@ impl SigmaRule {
                 let nf = n as f64;
                 let lambda = alpha * alpha * (nf + kappa) - nf;
                 let c = nf + lambda;
-                if !(c > 0.0) || !c.is_finite() {
+                let valid = c.is_finite() && c > 0.0;
+                if !valid {
                     return Err(SigmaError::Invalid(format!(
                         "unscented rule needs n + λ = α²(n+κ) > 0, got {c} (α={alpha}, κ={kappa}, n={n})"
                     )));

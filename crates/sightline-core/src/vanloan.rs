@@ -28,8 +28,15 @@ where
         }
     }
 
-    fn norm1_bound(&self) -> f64 {
-        self.f.abs().max() + self.g.abs().max() + self.h.abs().max()
+    /// The induced 1-norm (largest absolute column sum) of `[[f, g], [0, h]]`. The scaling rule
+    /// needs a true norm: the largest entry understates it by up to the dimension, which left
+    /// dense plants with a truncated series.
+    fn norm1(&self) -> f64 {
+        let column_sum =
+            |m: &OMatrix<f64, N, N>, j: usize| m.column(j).iter().map(|v| v.abs()).sum::<f64>();
+        (0..self.f.ncols())
+            .map(|j| column_sum(&self.f, j).max(column_sum(&self.g, j) + column_sum(&self.h, j)))
+            .fold(0.0, f64::max)
     }
 }
 
@@ -69,7 +76,7 @@ where
         h: a.transpose() * dt,
     };
     // Scale so the series converges fast: ‖C/2^s‖ ≤ 1/2.
-    let norm = c.norm1_bound();
+    let norm = c.norm1();
     let squarings = if norm > 0.5 {
         (norm / 0.5).log2().ceil() as i32
     } else {

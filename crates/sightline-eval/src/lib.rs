@@ -14,12 +14,14 @@ pub mod error;
 pub mod exact_sum;
 pub mod metrics;
 pub mod output;
+pub mod pcrlb;
 pub mod plant;
 pub mod report;
 pub mod runner;
 pub mod simulate;
 pub mod summary;
 pub mod verdict;
+pub mod tune;
 
 pub use error::{Error, Result};
 pub use plant::{AnyPlant, Plant, plant, shipped};

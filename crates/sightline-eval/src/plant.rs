@@ -13,6 +13,7 @@ use sightline_models::ModelVisitor;
 
 use crate::dataset::Dataset;
 use crate::error::Result;
+use crate::pcrlb::{Bound, pcrlb};
 use crate::simulate::{SimOptions, simulate};
 
 /// A plant as the commands see it, whatever its concrete model type.
@@ -46,6 +47,8 @@ pub trait AnyPlant: Send + Sync {
     fn simulate(&self, steps: usize, seed: u64, options: &SimOptions) -> Result<Dataset>;
     /// A boxed copy (each Monte Carlo worker owns one).
     fn clone_box(&self) -> Box<dyn AnyPlant>;
+    /// The posterior Cramér–Rao bound along the given true trajectories (see [`crate::pcrlb`]).
+    fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound>;
 }
 
 impl Clone for Box<dyn AnyPlant> {
@@ -249,5 +252,9 @@ where
 
     fn clone_box(&self) -> Box<dyn AnyPlant> {
         Box::new(self.clone())
+    }
+
+    fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound> {
+        pcrlb(&self.model, &self.prior_gaussian(), truths)
     }
 }

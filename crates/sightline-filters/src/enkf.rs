@@ -113,28 +113,51 @@ impl<M: Model> EnsembleKalmanFilter<M>
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
-    /// An ensemble drawn from `prior` (stream `(seed, initial)`).
+    /// An ensemble labelled `label` drawn from `prior` (stream `(seed, initial)`).
     ///
-    /// Fails if the prior covariance is not positive semi-definite or the config is out of range
-    /// (fewer than 2 members, inflation below 1 or not finite).
+    /// Fails, naming the setting, if the config is out of range (fewer than 2 members, inflation
+    /// below 1 or not finite), if the plant has no state or no measurement, or if the prior
+    /// covariance is not positive semi-definite.
     pub fn new(
         model: M,
         prior: Gaussian<M::State>,
         config: EnkfConfig,
         label: &str,
         seed: u64,
-    ) -> Result<Self, NumericError> {
+    ) -> Result<Self, SpecError> {
         let nd = model.state_dim();
         let md = model.meas_dim();
         let (n, m) = (nd.value(), md.value());
         let count = config.members;
-        if count < 2 || !(config.inflation >= 1.0 && config.inflation.is_finite()) {
-            return Err(NumericError::NonFinite {
-                quantity: "ensemble settings (need N ≥ 2, inflation ≥ 1)",
-            });
+        let bad = |key: &str, value: String, expected: &str| SpecError::BadValue {
+            spec: label.to_string(),
+            key: key.to_string(),
+            value,
+            expected: expected.to_string(),
+        };
+        if count < 2 {
+            return Err(bad("members", count.to_string(), "at least 2"));
+        }
+        if !(config.inflation.is_finite() && config.inflation >= 1.0) {
+            return Err(bad(
+                "inflation",
+                config.inflation.to_string(),
+                "a factor >= 1 (1 = no inflation)",
+            ));
+        }
+        let not_applicable = |reason: String| SpecError::NotApplicable {
+            spec: label.to_string(),
+            reason,
+        };
+        if n == 0 || m == 0 {
+            return Err(not_applicable(format!(
+                "the ensemble Kalman filter needs at least one state and one measurement; '{}' has {n} and {m}",
+                model.name()
+            )));
         }
         let stride = (n * m + m * m).max(n * n).max(2);
-        let factor = lower_factor(&prior.cov, "prior covariance")?;
+        let factor = lower_factor(&prior.cov, "prior covariance")
+            .map_err(|e| not_applicable(format!("cannot draw the initial ensemble: {e}")))?;
         let mut enkf = EnsembleKalmanFilter {
             tag: Tag::new(label),
             config,
@@ -159,7 +182,7 @@ where
             0,
         );
         enkf.estimate()
-            .map_err(|_| NumericError::NonFinite { quantity: "prior" })?;
+            .map_err(|e| not_applicable(format!("the initial ensemble: {e}")))?;
         Ok(enkf)
     }
 
@@ -248,11 +271,7 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
     let config = config_from_spec(spec)?;
-    let enkf = EnsembleKalmanFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)
-        .map_err(|e| SpecError::NotApplicable {
-        spec: spec.label.clone(),
-        reason: format!("cannot draw the initial ensemble: {e}"),
-    })?;
+    let enkf = EnsembleKalmanFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)?;
     Ok(Box::new(enkf))
 }
 

@@ -71,6 +71,9 @@ where
     }
 }
 
+/// The steady-state prediction covariance (`N × N`) and gain (`N × M`) of [`steady_state`].
+pub type SteadyState<N, M> = (OMatrix<f64, N, N>, OMatrix<f64, N, M>);
+
 /// Steady-state prediction covariance and gain of the discrete algebraic Riccati equation for the
 /// plant linearised at `prior.mean` with its default input and nominal step, by iterating the
 /// Riccati recursion P⁻ ← F(P⁻ − P⁻Hᵀ(HP⁻Hᵀ+R)⁻¹HP⁻)Fᵀ + Q from the prior covariance until the
@@ -79,13 +82,7 @@ where
 pub fn steady_state<M: Model>(
     model: &M,
     prior: &Gaussian<M::State>,
-) -> Result<
-    (
-        OMatrix<f64, M::State, M::State>,
-        OMatrix<f64, M::State, M::Meas>,
-    ),
-    NumericError,
->
+) -> Result<SteadyState<M::State, M::Meas>, NumericError>
 where
     M::State: Differentiable,
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,

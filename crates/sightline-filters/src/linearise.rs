@@ -51,6 +51,9 @@ where
     }
 }
 
+/// A function's value and Jacobian at a point: `(f(x), ∂f/∂x)`, `R` outputs over `C` states.
+pub type Linearisation<R, C> = (OVector<f64, R>, OMatrix<f64, R, C>);
+
 /// Where Jacobians come from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum JacobianSource {
@@ -68,7 +71,7 @@ pub fn transition_jacobian<M: Model>(
     t: f64,
     dt: f64,
     source: JacobianSource,
-) -> (OVector<f64, M::State>, OMatrix<f64, M::State, M::State>)
+) -> Linearisation<M::State, M::State>
 where
     M::State: Differentiable,
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
@@ -88,7 +91,7 @@ pub fn measurement_jacobian<M: Model>(
     u: &OVector<f64, M::Input>,
     t: f64,
     source: JacobianSource,
-) -> (OVector<f64, M::Meas>, OMatrix<f64, M::Meas, M::State>)
+) -> Linearisation<M::Meas, M::State>
 where
     M::State: Differentiable,
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,

@@ -268,28 +268,53 @@ impl<M: Model> ParticleFilter<M>
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
-    /// A particle filter with the cloud drawn from `prior` (stream `(seed, initial)`).
+    /// A particle filter labelled `label` with the cloud drawn from `prior` (stream
+    /// `(seed, initial)`).
     ///
-    /// Fails if the prior covariance is not positive semi-definite or the config is out of
-    /// range (fewer than 2 particles, `ess` outside [0, 1], a negative roughening constant).
+    /// Fails, naming the setting, if the config is out of range (fewer than 2 particles, `ess`
+    /// outside [0, 1], a negative roughening constant), if the plant has no state or no
+    /// measurement, or if the prior covariance is not positive semi-definite.
     pub fn new(
         model: M,
         prior: Gaussian<M::State>,
         config: PfConfig,
         label: &str,
         seed: u64,
-    ) -> Result<Self, NumericError> {
+    ) -> Result<Self, SpecError> {
         let nd = model.state_dim();
         let md = model.meas_dim();
         let (n, m) = (nd.value(), md.value());
         let count = config.particles;
-        if count < 2
-            || !(0.0..=1.0).contains(&config.ess)
-            || matches!(config.jitter, Jitter::Roughening(k) if !(k >= 0.0 && k.is_finite()))
-        {
-            return Err(NumericError::NonFinite {
-                quantity: "particle filter settings (need N ≥ 2, 0 ≤ ess ≤ 1, roughening ≥ 0)",
-            });
+        let bad = |key: &str, value: String, expected: &str| SpecError::BadValue {
+            spec: label.to_string(),
+            key: key.to_string(),
+            value,
+            expected: expected.to_string(),
+        };
+        if count < 2 {
+            return Err(bad("particles", count.to_string(), "at least 2"));
+        }
+        if !(0.0..=1.0).contains(&config.ess) {
+            return Err(bad(
+                "ess",
+                config.ess.to_string(),
+                "a fraction of N from 0 to 1",
+            ));
+        }
+        if let Jitter::Roughening(k) = config.jitter {
+            if !(k.is_finite() && k >= 0.0) {
+                return Err(bad("roughening", k.to_string(), "a number >= 0"));
+            }
+        }
+        let not_applicable = |reason: String| SpecError::NotApplicable {
+            spec: label.to_string(),
+            reason,
+        };
+        if n == 0 || m == 0 {
+            return Err(not_applicable(format!(
+                "the particle filter needs at least one state and one measurement; '{}' has {n} and {m}",
+                model.name()
+            )));
         }
         let blocks = block_count(count);
         let stride = n * n + m * m + 2 * n + 3;
@@ -298,7 +323,8 @@ where
         } else {
             0
         };
-        let factor = lower_factor(&prior.cov, "prior covariance")?;
+        let factor = lower_factor(&prior.cov, "prior covariance")
+            .map_err(|e| not_applicable(format!("cannot draw the initial particles: {e}")))?;
         let mut pf = ParticleFilter {
             tag: Tag::new(label),
             config,
@@ -338,7 +364,7 @@ where
             0,
         );
         pf.estimate()
-            .map_err(|_| NumericError::NonFinite { quantity: "prior" })?;
+            .map_err(|e| not_applicable(format!("the initial particles: {e}")))?;
         Ok(pf)
     }
 
@@ -420,9 +446,7 @@ where
         if max == f64::NEG_INFINITY {
             return Err(self.collapse());
         }
-        let sum: f64 = self.log_weights.iter().map(|&l| (l - max).exp()).sum();
-        let log_z = max + sum.ln();
-        self.normalise(log_z);
+        self.normalise(max);
         Ok(())
     }
 
@@ -458,7 +482,7 @@ where
     /// Adds ln p(y | xᵢ) of the points `source` (the particles, or the auxiliary anchors) to
     /// `target` (the log-weights, or the auxiliary scratch), keeping h(xᵢ) in `predicted_meas`
     /// and the prior weight of every particle with a finite h(xᵢ) in `scratch`. Returns the
-    /// log-sum-exp of the new log-weights and the sum of `scratch`.
+    /// largest new log-weight (−∞ on collapse) and the sum of `scratch`.
     fn weigh(
         &mut self,
         source: Source,
@@ -496,7 +520,7 @@ where
             .for_each(|(b, (lw, meas, valid, slot))| {
                 let y = vector(md, y);
                 let u = vector(ud, u);
-                let (mut max, mut sum, mut valid_sum) = (f64::NEG_INFINITY, 0.0, 0.0);
+                let (mut max, mut valid_sum) = (f64::NEG_INFINITY, 0.0);
                 for k in 0..lw.len() {
                     let i = b * BLOCK + k;
                     let x = vector(nd, &points[i * n..(i + 1) * n]);
@@ -529,30 +553,16 @@ where
                         w = f64::NEG_INFINITY;
                     }
                     lw[k] = w;
-                    // Streaming log-sum-exp within the block.
-                    if w > max {
-                        sum = sum * (max - w).exp() + 1.0;
-                        max = w;
-                    } else if w > f64::NEG_INFINITY {
-                        sum += (w - max).exp();
-                    }
+                    max = max.max(w);
                 }
                 slot[0] = max;
-                slot[1] = sum;
-                slot[2] = valid_sum;
+                slot[1] = valid_sum;
             });
         let blocks = block_count(self.count());
         let slots = || self.partials.chunks_exact(self.stride).take(blocks);
         let max = slots().map(|s| s[0]).fold(f64::NEG_INFINITY, f64::max);
-        let valid_sum: f64 = slots().map(|s| s[2]).sum();
-        if max == f64::NEG_INFINITY || max.is_nan() {
-            return (f64::NEG_INFINITY, valid_sum);
-        }
-        let total: f64 = slots()
-            .filter(|s| s[0] > f64::NEG_INFINITY)
-            .map(|s| s[1] * (s[0] - max).exp())
-            .sum();
-        (max + total.ln(), valid_sum)
+        let valid_sum: f64 = slots().map(|s| s[1]).sum();
+        (max, valid_sum)
     }
 
     /// Innovation y − ŷ and S = Σ w̄ᵢ eᵢeᵢᵀ + R from the last weighting pass over the
@@ -613,8 +623,34 @@ where
         Ok(())
     }
 
-    /// Normalises the log-weights by `log_z` and refreshes the linear weights; returns the ESS.
-    fn normalise(&mut self, log_z: f64) -> f64 {
+    /// Normalises the log-weights by log-sum-exp about their maximum `max` (finite), so that
+    /// no weight underflows to zero unless it is negligible against the largest, and refreshes
+    /// the linear weights and the ESS. Returns the log normaliser ln Σ exp(log-weights).
+    fn normalise(&mut self, max: f64) -> f64 {
+        let blocks = block_count(self.count());
+        (
+            self.log_weights.par_chunks(BLOCK),
+            self.weights.par_chunks_mut(BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(lw, w, slot)| {
+                let mut sum = 0.0;
+                for (l, w) in lw.iter().zip(w.iter_mut()) {
+                    *w = (l - max).exp();
+                    sum += *w;
+                }
+                slot[0] = sum;
+            });
+        let total: f64 = self
+            .partials
+            .chunks_exact(self.stride)
+            .take(blocks)
+            .map(|s| s[0])
+            .sum();
+        let log_z = max + total.ln();
+        let scale = 1.0 / total;
         (
             self.log_weights.par_chunks_mut(BLOCK),
             self.weights.par_chunks_mut(BLOCK),
@@ -626,12 +662,11 @@ where
                 let mut squares = 0.0;
                 for (l, w) in lw.iter_mut().zip(w.iter_mut()) {
                     *l -= log_z;
-                    *w = l.exp();
+                    *w *= scale;
                     squares += *w * *w;
                 }
                 slot[0] = squares;
             });
-        let blocks = block_count(self.count());
         let squares: f64 = self
             .partials
             .chunks_exact(self.stride)
@@ -639,7 +674,7 @@ where
             .map(|s| s[0])
             .sum();
         self.ess = 1.0 / squares;
-        self.ess
+        log_z
     }
 
     /// Resamples by the current weights into the spare buffer, swaps, and jitters.
@@ -758,7 +793,8 @@ where
     }
 
     /// The collapse remedy: an error, or (with `redraw=on`) a re-drawn and re-weighed cloud.
-    /// Returns the new log normaliser, or `None` if the measurement had to be skipped.
+    /// Returns the new largest log-weight and valid prior mass, or `None` if the measurement
+    /// had to be skipped.
     fn recover(
         &mut self,
         y: &[f64],
@@ -770,9 +806,9 @@ where
             return Err(self.collapse());
         }
         self.redraw()?;
-        let (log_z, valid_sum) = self.weigh(Source::Particles, Target::LogWeights, y, u, t, lik);
-        if log_z.is_finite() {
-            return Ok(Some((log_z, valid_sum)));
+        let (max, valid_sum) = self.weigh(Source::Particles, Target::LogWeights, y, u, t, lik);
+        if max.is_finite() {
+            return Ok(Some((max, valid_sum)));
         }
         self.set_uniform_weights();
         self.innov.clear();
@@ -781,11 +817,10 @@ where
         Ok(None)
     }
 
-    /// Normalise, estimate and resample when the ESS is low.
-    fn finish_update(&mut self, log_z: f64) -> Result<(), FilterError> {
-        let ess = self.normalise(log_z);
+    /// Estimate from the normalised weights, and resample when the ESS is low.
+    fn finish_update(&mut self) -> Result<(), FilterError> {
         self.estimate()?;
-        if ess < self.config.ess * self.count() as f64 {
+        if self.ess < self.config.ess * self.count() as f64 {
             self.resample()?;
         }
         Ok(())
@@ -800,17 +835,18 @@ where
         lik: &Likelihood<M::Meas>,
     ) -> Result<(), FilterError> {
         let ys = y.as_slice();
-        let (mut log_z, mut valid_sum) =
+        let (mut max, mut valid_sum) =
             self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
-        if !log_z.is_finite() {
+        if !max.is_finite() {
             match self.recover(ys, u, t, lik)? {
-                Some(found) => (log_z, valid_sum) = found,
+                Some(found) => (max, valid_sum) = found,
                 None => return Ok(()),
             }
         }
         self.innovation_stats(y, present, valid_sum, &lik.r)?;
-        self.log_likelihood = log_z;
-        self.finish_update(log_z)
+        // The prior weights summed to 1, so ln Σ exp(new log-weights) = ln Σ w̄ᵢ p(y | xᵢ).
+        self.log_likelihood = self.normalise(max);
+        self.finish_update()
     }
 
     fn auxiliary_update(
@@ -824,20 +860,25 @@ where
         let ys = y.as_slice();
         // Innovation statistics from the predicted cloud (its weights are discarded).
         self.scratch_log.copy_from_slice(&self.log_weights);
-        let (log_z, valid_sum) = self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
-        if log_z.is_finite() {
-            self.innovation_stats(y, present, valid_sum, &lik.r)?;
+        let (max, valid_sum) = self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
+        if !max.is_finite() {
+            // The predicted cloud itself collapses: the bootstrap step owns the remedy.
+            return self.sir_update(y, present, u, t, lik);
         }
+        self.innovation_stats(y, present, valid_sum, &lik.r)?;
         // First stage: λⱼ ∝ w̄ⱼ p(y | μⱼ).
         self.scratch_log.copy_from_slice(&self.log_weights);
-        let (log_first, _) = self.weigh(Source::Anchors, Target::Scratch, ys, u, t, lik);
-        if !log_first.is_finite() {
+        let (max_first, _) = self.weigh(Source::Anchors, Target::Scratch, ys, u, t, lik);
+        if !max_first.is_finite() {
             // The look-ahead points all miss the measurement: take the bootstrap step.
             return self.sir_update(y, present, u, t, lik);
         }
+        let mut first_total = 0.0;
         for (w, l) in self.scratch.iter_mut().zip(&self.scratch_log) {
-            *w = (l - log_first).exp();
+            *w = (l - max_first).exp();
+            first_total += *w;
         }
+        let log_first = max_first + first_total.ln();
         let step = self.tag.step as u64;
         let mut rng = stream(self.seed, &[purpose::AUXILIARY_SELECT, step]);
         resample(
@@ -888,20 +929,17 @@ where
         }
         let uniform = 1.0 / self.count() as f64;
         self.weights.fill(uniform);
-        let (mut log_second, _) = self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
-        let mut log_likelihood = log_first + log_second - (self.count() as f64).ln();
-        if !log_second.is_finite() {
+        let (max_second, _) = self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
+        self.log_likelihood = if max_second.is_finite() {
+            log_first + self.normalise(max_second) - (self.count() as f64).ln()
+        } else {
             match self.recover(ys, u, t, lik)? {
-                Some((log_z, _)) => {
-                    log_second = log_z;
-                    log_likelihood = log_z;
-                }
+                Some((max, _)) => self.normalise(max),
                 None => return Ok(()),
             }
-        }
+        };
         self.innov.present = present;
-        self.log_likelihood = log_likelihood;
-        self.finish_update(log_second)
+        self.finish_update()
     }
 }
 
@@ -975,12 +1013,7 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
     let config = config_from_spec(spec)?;
-    let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed).map_err(
-        |e| SpecError::NotApplicable {
-            spec: spec.label.clone(),
-            reason: format!("cannot draw the initial particles: {e}"),
-        },
-    )?;
+    let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)?;
     Ok(Box::new(pf))
 }
 

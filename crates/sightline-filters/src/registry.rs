@@ -57,9 +57,11 @@ macro_rules! registry {
 registry! {
     crate::kf::INFO => crate::kf::build,
     crate::ekf::INFO => crate::ekf::build,
+    crate::iekf::INFO => crate::iekf::build,
     crate::sigma_point::UKF => crate::sigma_point::build_ukf,
     crate::sigma_point::CKF => crate::sigma_point::build_ckf,
     crate::sigma_point::GHKF => crate::sigma_point::build_ghkf,
+    crate::srukf::INFO => crate::srukf::build,
     crate::pf::INFO => crate::pf::build,
     crate::enkf::INFO => crate::enkf::build,
 }

@@ -150,13 +150,19 @@ pub fn build_ukf<M: Model>(
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
+    let rule = unscented_rule(spec)?;
+    build_rule(model, prior, spec, rule, UKF.kind)
+}
+
+/// The scaled unscented rule from a spec's `alpha`, `beta`, `kappa` (the options of
+/// [`UKF`], shared by `srukf`).
+pub(crate) fn unscented_rule(spec: &FilterSpec) -> Result<SigmaRule, SpecError> {
     let o = spec.options(UKF.options)?;
-    let rule = SigmaRule::Unscented {
+    Ok(SigmaRule::Unscented {
         alpha: o.real("alpha", 1.0, |a| a > 0.0, "a number > 0")?,
         beta: o.real("beta", 2.0, |_| true, "a finite number")?,
         kappa: o.real("kappa", 0.0, |_| true, "a finite number")?,
-    };
-    build_rule(model, prior, spec, rule, UKF.kind)
+    })
 }
 
 /// Builds a `ckf` from a spec.
