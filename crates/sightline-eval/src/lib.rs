@@ -20,8 +20,8 @@ pub mod report;
 pub mod runner;
 pub mod simulate;
 pub mod summary;
-pub mod verdict;
 pub mod tune;
+pub mod verdict;
 
 pub use error::{Error, Result};
 pub use plant::{AnyPlant, Plant, plant, shipped};

@@ -309,15 +309,29 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
         });
     if let Some(f) = best_fit {
         if ok.len() > 1 {
+            let best = f.log_likelihood.unwrap_or(f64::NAN);
+            // Equal to the printed precision counts as a tie (e.g. every Gaussian filter on a
+            // linear plant).
+            let tol = 1e-6 * best.abs().max(1.0);
+            let tied: Vec<&FilterSummary> = ok
+                .iter()
+                .copied()
+                .filter(|g| g.log_likelihood.is_some_and(|l| (best - l).abs() <= tol))
+                .collect();
             lines.push(format!(
-                "Best predictive fit (highest log-likelihood{}): {} ({}).",
+                "Best predictive fit (highest log-likelihood{}): {} ({}{}).",
                 if runs.is_some() {
                     ", mean over runs"
                 } else {
                     ""
                 },
-                f.label,
-                sig(f.log_likelihood.unwrap_or(f64::NAN), 6)
+                if tied.len() > 1 {
+                    names(&tied)
+                } else {
+                    f.label.clone()
+                },
+                if tied.len() > 1 { "tied at " } else { "" },
+                sig(best, 6)
             ));
         }
     }
