@@ -92,3 +92,52 @@ fn a_kalman_filter_with_ten_times_the_process_noise_is_under_confident() {
         band.lo
     );
 }
+
+/// Run i of a campaign is reproduced alone by simulating with its run seed and comparing with
+/// the same seed (the reproducibility promise of `montecarlo`; common practice for seeded
+/// campaigns). The particle filter checks that the filters' streams follow the seed too.
+#[test]
+fn one_run_of_a_campaign_reproduces_alone() {
+    use sightline_eval::campaign::{Shard, run_seed};
+    let plants = shipped();
+    let cv = plants.iter().find(|p| p.name() == "cv").unwrap();
+    let labels = ["kf", "pf:particles=300"];
+    let specs: Vec<FilterSpec> = labels
+        .iter()
+        .map(|s| FilterSpec::parse(s).unwrap())
+        .collect();
+    let campaign = CampaignSpec {
+        model: "cv".into(),
+        set: Vec::new(),
+        runs: 3,
+        steps: 80,
+        seed: 99,
+        filters: labels.iter().map(|s| s.to_string()).collect(),
+    };
+    // Shard 2/3 of 3 runs is run 1 alone.
+    let range = Shard { index: 2, count: 3 }.range(3);
+    assert_eq!(range, 1..2);
+    let totals = run_campaign(cv.as_ref(), &specs, &campaign, range).unwrap();
+    let from_campaign = summarise(&totals);
+    let seed = run_seed(99, 1);
+    let data = cv.simulate(80, seed, &SimOptions::default()).unwrap();
+    let options = CompareOptions {
+        seed,
+        ..CompareOptions::default()
+    };
+    let alone = compare(
+        cv.as_ref(),
+        &specs,
+        &mut MemorySource::new(&data),
+        &options,
+        None,
+    )
+    .unwrap();
+    for (a, b) in from_campaign.filters.iter().zip(&alone.summary.filters) {
+        let (x, y) = (a.rmse_all.unwrap(), b.rmse_all.unwrap());
+        // Equal up to the order of the floating-point sums (exact vs running).
+        assert!((x - y).abs() <= 1e-12 * y, "{}: {x} vs {y}", a.label);
+        let (x, y) = (a.log_likelihood.unwrap(), b.log_likelihood.unwrap());
+        assert!((x - y).abs() <= 1e-9 * y.abs(), "{}: {x} vs {y}", a.label);
+    }
+}
