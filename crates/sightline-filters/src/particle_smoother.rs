@@ -158,6 +158,7 @@ where
         moments(model, &current, paths, &mut track, last);
 
         let mut mapped = vec![0.0; count * n];
+        let mut log_w = vec![0.0; count];
         let mut inverse = vec![0.0; n * n];
         let mut log_det = vec![0.0; 1];
         for k in (0..last).rev() {
@@ -165,6 +166,10 @@ where
             let step = &self.steps[k];
             let cloud = &self.particles[k * count * n..(k + 1) * count * n];
             let w = &self.weights[k * count..(k + 1) * count];
+            // ln wᵢ once per step rather than once per trajectory (−∞ for a zero weight).
+            for (l, &wi) in log_w.iter_mut().zip(w) {
+                *l = if wi > 0.0 { wi.ln() } else { f64::NEG_INFINITY };
+            }
             cloud::transition_means(model, cloud, &mut mapped, &step.input, step.t, step.dt);
             // Kernel N(·; f(xᵢ), Q): inverse factors L⁻¹ and ln det Q, shared or per particle.
             match self.noise {
@@ -190,7 +195,7 @@ where
                 }
             }
             let shared = self.noise == NoiseAt::Mean;
-            let (inverse, log_det, mapped) = (&inverse, &log_det, &mapped);
+            let (inverse, log_det, mapped, log_w) = (&inverse, &log_det, &mapped, &log_w);
             let lost = AtomicBool::new(false);
             current.par_chunks_mut(n).enumerate().for_each_init(
                 || vec![0.0; count],
@@ -198,7 +203,7 @@ where
                     let next = vector(nd, x);
                     let mut max = f64::NEG_INFINITY;
                     for i in 0..count {
-                        log_weights[i] = if w[i] > 0.0 {
+                        log_weights[i] = if log_w[i] > f64::NEG_INFINITY {
                             let (inv, ld) = if shared {
                                 (&inverse[..], log_det[0])
                             } else {
@@ -206,7 +211,7 @@ where
                             };
                             let r = model
                                 .state_residual(&next, &vector(nd, &mapped[i * n..(i + 1) * n]));
-                            w[i].ln() - 0.5 * (mahalanobis(inv, r.as_slice()) + ld)
+                            log_w[i] - 0.5 * (mahalanobis(inv, r.as_slice()) + ld)
                         } else {
                             f64::NEG_INFINITY
                         };
