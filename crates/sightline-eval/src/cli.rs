@@ -80,7 +80,8 @@ pub enum Command {
         /// Seed of the sampling filters' random streams.
         #[arg(long, default_value_t = 0)]
         seed: u64,
-        /// Also run the smoothers and report smoothed accuracy.
+        /// Also smooth every filter that has a smoother: smoothed_rmse_all in summary.json,
+        /// DIR/smoothed.csv and smoothed plots (holds the run in memory).
         #[arg(long)]
         smooth: bool,
         /// Treat non-finite measurement cells (nan, inf) as missing instead of rejecting them.
