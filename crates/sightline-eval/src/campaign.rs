@@ -715,6 +715,8 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
             0.0
         },
         smoothed_rmse_all: None,
+        smoothed_rmse: None,
+        smoother: None,
         anees_band: if ok { band.map(|b| b.to_array()) } else { None },
         nees_tails: None,
         anis_band: anis_band.map(|b| b.to_array()),

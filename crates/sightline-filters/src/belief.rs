@@ -1,10 +1,12 @@
-//! The Gaussian belief every Gaussian filter carries, and the linearised (EKF-type) update.
+//! The Gaussian belief every Gaussian filter carries, the linearised (EKF-type) update, and the
+//! recording of transition moments for the RTS smoothers ([`crate::smoother`]).
 
 use nalgebra::{DefaultAllocator, OMatrix, OVector};
 use sightline_core::linalg::{cholesky, ensure_finite, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 
 use crate::filter::{FilterError, Tag};
+use crate::smoother::{GaussianRecord, SmoothedTrack, SmootherKind};
 use crate::update::{InnovationStore, mask_missing, present_mask};
 
 /// Plant, label/step, mean, covariance and last innovation of a Gaussian filter.
@@ -18,6 +20,8 @@ where
     pub mean: OVector<f64, M::State>,
     pub cov: OMatrix<f64, M::State, M::State>,
     pub innov: InnovationStore<M::Meas>,
+    /// Transition moments for the smoother, when recording.
+    pub record: Option<GaussianRecord<M::State>>,
 }
 
 impl<M: Model> Belief<M>
@@ -32,7 +36,38 @@ where
             mean: prior.mean,
             cov: prior.cov,
             innov: InnovationStore::new(m),
+            record: None,
         }
+    }
+
+    /// Starts recording transition moments for the smoother `kind` (once; later calls keep the
+    /// record). Returns `true`: every Gaussian filter supports smoothing.
+    pub fn start_recording(&mut self, kind: SmootherKind) -> bool {
+        if self.record.is_none() {
+            self.record = Some(GaussianRecord::new(kind));
+        }
+        true
+    }
+
+    /// Whether transition moments are being recorded (then the filter must call
+    /// [`Belief::record_transition`] in its prediction).
+    pub fn recording(&self) -> bool {
+        self.record.is_some()
+    }
+
+    /// Records the filtered belief before a prediction, with the filter's cross-covariance
+    /// C = Cov(x(k−1), x(k) | y(0..k−1)). Call it before the mean and covariance are overwritten;
+    /// [`Belief::finish_predict`] completes the record with the predicted moments.
+    pub fn record_transition(&mut self, cross: OMatrix<f64, M::State, M::State>) {
+        if let Some(record) = &mut self.record {
+            record.begin(&self.mean, &self.cov, cross);
+        }
+    }
+
+    /// The RTS-smoothed track of the recorded run, `None` if not recording.
+    pub fn smooth(&self) -> Option<Result<SmoothedTrack, FilterError>> {
+        let record = self.record.as_ref()?;
+        Some(record.smooth(&self.model, &self.tag, &self.mean, &self.cov))
     }
 
     /// The input slice as a model vector.
@@ -53,6 +88,9 @@ where
         ensure_finite(self.mean.iter(), "predicted mean").map_err(|e| self.tag.numeric(e))?;
         ensure_finite(self.cov.iter(), "predicted covariance").map_err(|e| self.tag.numeric(e))?;
         self.model.project(&mut self.mean);
+        if let Some(record) = &mut self.record {
+            record.complete(&self.mean, &self.cov);
+        }
         Ok(())
     }
 
@@ -142,6 +180,9 @@ macro_rules! belief_accessors {
             } else {
                 0.0
             }
+        }
+        fn smooth(&self) -> Option<Result<$crate::SmoothedTrack, $crate::FilterError>> {
+            self.$field.smooth()
         }
     };
 }

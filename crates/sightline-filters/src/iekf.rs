@@ -33,6 +33,7 @@ use crate::belief::{Belief, belief_accessors};
 use crate::filter::{Diagnostics, Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::mask_missing;
 
@@ -138,6 +139,12 @@ where
         INFO.kind
     }
 
+    /// The RTS pass over the IEKF's filtered moments, the transition linearised at the
+    /// filtered mean as in the prediction.
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::Rts)
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         // The time update is the EKF's: x⁻ = f(x), P⁻ = F P Fᵀ + Q.
         let b = &mut self.belief;
@@ -145,6 +152,11 @@ where
         let u = b.input(u)?;
         let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
         let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
         b.mean = fx;
         b.cov = &f * &b.cov * f.transpose() + q;
         b.finish_predict()

@@ -7,6 +7,9 @@
 //! from (m⁻, P⁻) and propagated through h; S = Σ Wᶜᵢ eᵢeᵢᵀ + R, C = Σ Wᶜᵢ dᵢeᵢᵀ, and the Kalman
 //! update follows (Wan & van der Merwe, AS-SPCC 2000; Särkkä, *Bayesian Filtering and
 //! Smoothing*, 2013, Alg. 5.14). Point buffers are allocated once, at construction.
+//!
+//! Smoothing: every rule records the cross-covariance of its own prediction points for the
+//! sigma-point RTS smoother (Särkkä, IEEE TAC 53(3), 2008; see [`crate::smoother`]).
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use sightline_core::linalg::cholesky;
@@ -15,6 +18,7 @@ use sightline_core::{Alloc, Gaussian, Model, SigmaRule};
 use crate::belief::{Belief, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{kalman_update, mask_missing};
 
@@ -210,6 +214,10 @@ where
         self.kind
     }
 
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::SigmaPointRts)
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         self.belief.tag.step += 1;
         let u = self.belief.input(u)?;
@@ -227,6 +235,19 @@ where
             let x: OVector<f64, M::State> = self.mapped.column(i).into_owned();
             let d = b.model.state_residual(&x, &mean);
             cov.ger(w, &d, &d, 1.0);
+        }
+        if b.recording() {
+            // Sigma-point cross-covariance D = Σ Wᶜᵢ (Xᵢ − m)(f(Xᵢ) − m⁻)ᵀ (Särkkä 2008).
+            let (n, _) = cov.shape_generic();
+            let mut cross = OMatrix::<f64, M::State, M::State>::zeros_generic(n, n);
+            for (i, &w) in self.wc.iter().enumerate() {
+                let x: OVector<f64, M::State> = self.points.column(i).into_owned();
+                let fx: OVector<f64, M::State> = self.mapped.column(i).into_owned();
+                let d = b.model.state_residual(&x, &b.mean);
+                let e = b.model.state_residual(&fx, &mean);
+                cross.ger(w, &d, &e, 1.0);
+            }
+            b.record_transition(cross);
         }
         b.mean = mean;
         b.cov = cov;

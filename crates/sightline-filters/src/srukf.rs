@@ -33,6 +33,10 @@
 //! Mathematically the filter equals `ukf` with the same options. It keeps the covariance
 //! positive semi-definite by construction, and the factor's condition number is the square root
 //! of the covariance's, which is what makes square-root forms robust in finite precision.
+//!
+//! Smoothing: the prediction points and their images give the cross-covariance of the
+//! sigma-point RTS smoother (Särkkä, IEEE TAC 53(3), 2008); the backward pass works on the
+//! covariance P = S Sᵀ ([`crate::smoother`]).
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use sightline_core::linalg::{
@@ -44,6 +48,7 @@ use crate::belief::{Belief, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::registry::KindInfo;
 use crate::sigma_point::{UKF, unscented_rule};
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, SpecError};
 use crate::update::{LN_2PI, mask_missing};
 
@@ -190,6 +195,10 @@ where
         INFO.kind
     }
 
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::SigmaPointRts)
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         self.belief.tag.step += 1;
         let u = self.belief.input(u)?;
@@ -230,6 +239,21 @@ where
             let mut d = b.model.state_residual(&x, &mean) * w.abs().sqrt();
             cholesky_rank_one(&mut factor, &mut d, w < 0.0, "predicted covariance")
                 .map_err(numeric)?;
+        }
+        if self.belief.recording() {
+            // Cross-covariance of the prediction points χᵢ = x̂ + S ξᵢ and Xᵢ = f(χᵢ), as for the
+            // ukf (Särkkä 2008); the centre weight may be negative, which a sum handles as is.
+            let b = &self.belief;
+            let (n, _) = self.factor.shape_generic();
+            let mut cross = OMatrix::<f64, M::State, M::State>::zeros_generic(n, n);
+            for (i, &w) in self.wc.iter().enumerate() {
+                let x: OVector<f64, M::State> = self.points.column(i).into_owned();
+                let fx: OVector<f64, M::State> = self.mapped.column(i).into_owned();
+                let d = b.model.state_residual(&x, &b.mean);
+                let e = b.model.state_residual(&fx, &mean);
+                cross.ger(w, &d, &e, 1.0);
+            }
+            self.belief.record_transition(cross);
         }
         self.belief.mean = mean;
         self.set_factor(factor);
