@@ -231,9 +231,78 @@ pub struct Totals {
     pub covered: Vec<[u64; 2]>,
     /// Per filter, in spec order.
     pub filters: Vec<FilterTotals>,
-    /// RMSE bound from the posterior Cramér–Rao bound, when computed for the plant (the PCRLB
-    /// recursion plugs in here; `None` until then).
-    pub pcrlb_rmse_all: Option<f64>,
+    /// Exact sums of the posterior Cramér–Rao bound's information terms over the runs
+    /// (`None` for plants with more than [`crate::pcrlb::MAX_STATES`] states).
+    pub pcrlb: Option<PcrlbTotals>,
+}
+
+/// The PCRLB's share of the totals: the information terms of every run, summed exactly so that
+/// the bound of a merged campaign is bit for bit the unsharded one. The recursion itself runs on
+/// the averages when the summary is made ([`crate::pcrlb::bound_from_terms`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PcrlbTotals {
+    /// Prior covariance, column-major.
+    pub prior_cov: Vec<f64>,
+    /// Per step, Σ over runs of the `[D11 | D12 | D22]` entries.
+    pub terms: Vec<Vec<ExactSum>>,
+    /// Runs summed.
+    pub runs: u64,
+    /// Why the bound could not be computed (the lowest-numbered run's error).
+    pub error: Option<RunError>,
+}
+
+impl PcrlbTotals {
+    fn add(&mut self, run: u64, terms: Result<Vec<Vec<f64>>>) {
+        match terms {
+            Ok(terms) => {
+                for (sums, row) in self.terms.iter_mut().zip(&terms) {
+                    for (a, v) in sums.iter_mut().zip(row) {
+                        a.add(*v);
+                    }
+                }
+                self.runs += 1;
+            }
+            Err(e) => self.note_error(RunError {
+                run,
+                error: e.to_string(),
+            }),
+        }
+    }
+
+    fn note_error(&mut self, e: RunError) {
+        if self.error.as_ref().is_none_or(|old| e.run < old.run) {
+            self.error = Some(e);
+        }
+    }
+
+    fn merge(&mut self, other: &PcrlbTotals) {
+        for (a, b) in self.terms.iter_mut().zip(&other.terms) {
+            for (x, y) in a.iter_mut().zip(b) {
+                x.merge(y);
+            }
+        }
+        self.runs += other.runs;
+        if let Some(e) = &other.error {
+            self.note_error(e.clone());
+        }
+    }
+
+    /// The bound over the runs summed, or why there is none.
+    pub fn bound(&self, states: usize) -> Result<crate::pcrlb::Bound> {
+        if let Some(e) = &self.error {
+            return Err(Error::Run(format!("run {}: {}", e.run, e.error)));
+        }
+        if self.runs == 0 {
+            return Err(Error::Run("no run finished".into()));
+        }
+        let scale = 1.0 / self.runs as f64;
+        let means: Vec<Vec<f64>> = self
+            .terms
+            .iter()
+            .map(|row| row.iter().map(|s| s.value() * scale).collect())
+            .collect();
+        crate::pcrlb::bound_from_terms(states, &self.prior_cov, &means)
+    }
 }
 
 impl Totals {
@@ -288,17 +357,22 @@ impl Observer for PerStep {
     }
 }
 
+/// One run's filter results and, when the campaign keeps the PCRLB, its information terms.
+type RunResult = (Vec<FilterRun>, Option<Result<Vec<Vec<f64>>>>);
+
 fn one_run(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     campaign: &CampaignSpec,
     i: u64,
-) -> Result<Vec<FilterRun>> {
+    with_pcrlb: bool,
+) -> Result<RunResult> {
     let seed = run_seed(campaign.seed, i);
     let steps = campaign.steps as usize;
     let data = plant
         .simulate(steps, seed, &SimOptions::default())
         .map_err(|e| Error::Run(format!("run {i} (seed {seed}): {e}")))?;
+    let terms = with_pcrlb.then(|| plant.pcrlb_terms(&data));
     let filters = runner::build_filters(plant, specs, seed)?;
     let mut per_step = PerStep {
         nees: vec![vec![f64::NAN; steps]; specs.len()],
@@ -316,7 +390,7 @@ fn one_run(
         &config,
         &mut per_step,
     )?;
-    Ok(outcome
+    let runs = outcome
         .filters
         .into_iter()
         .zip(per_step.nees)
@@ -335,10 +409,14 @@ fn one_run(
             steps: f.metrics.steps,
             diagnostics: f.diagnostics.into(),
         })
-        .collect())
+        .collect();
+    Ok((runs, terms))
 }
 
-fn add_run(totals: &mut Totals, i: u64, runs: Vec<FilterRun>) {
+fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
+    if let (Some(p), Some(terms)) = (totals.pcrlb.as_mut(), terms) {
+        p.add(i, terms);
+    }
     for (t, r) in totals.filters.iter_mut().zip(runs) {
         t.seconds.add(r.seconds);
         t.timed_steps += r.steps;
@@ -401,8 +479,17 @@ pub fn run_campaign(
             .iter()
             .map(|f| FilterTotals::new(f.label(), f.kind(), states.len(), steps))
             .collect(),
-        pcrlb_rmse_all: None,
+        pcrlb: (states.len() <= crate::pcrlb::MAX_STATES).then(|| {
+            let n = states.len();
+            PcrlbTotals {
+                prior_cov: plant.prior().1,
+                terms: vec![vec![ExactSum::default(); 3 * n * n]; steps],
+                runs: 0,
+                error: None,
+            }
+        }),
     };
+    let with_pcrlb = totals.pcrlb.is_some();
     drop(probe);
     let progress = std::io::stderr().is_terminal().then(|| {
         let bar = indicatif::ProgressBar::new(range.end - range.start);
@@ -421,10 +508,10 @@ pub fn run_campaign(
     let mut start = range.start;
     while start < range.end {
         let end = (start + chunk).min(range.end);
-        let results: Vec<Result<Vec<FilterRun>>> = (start..end)
+        let results: Vec<Result<RunResult>> = (start..end)
             .into_par_iter()
             .map(|i| {
-                let r = one_run(plant, specs, campaign, i);
+                let r = one_run(plant, specs, campaign, i, with_pcrlb);
                 if let Some(bar) = &progress {
                     bar.inc(1);
                 }
@@ -469,10 +556,16 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
                 )));
             }
         }
-        if part.pcrlb_rmse_all != total.pcrlb_rmse_all {
-            return Err(Error::Usage(
-                "merge: the shards disagree on the PCRLB".into(),
-            ));
+        match (total.pcrlb.as_mut(), &part.pcrlb) {
+            (Some(a), Some(b)) if a.prior_cov == b.prior_cov && a.terms.len() == b.terms.len() => {
+                a.merge(b)
+            }
+            (None, None) => {}
+            _ => {
+                return Err(Error::Usage(
+                    "merge: the shards disagree on the Cramér–Rao bound's set-up".into(),
+                ));
+            }
         }
         for (a, b) in total.filters.iter_mut().zip(&part.filters) {
             a.merge(b)?;
@@ -644,6 +737,10 @@ pub fn summarise(totals: &Totals) -> Summary {
         .map(|t| filter_summary(totals, t))
         .collect();
     let runs = totals.runs_covered();
+    let bound = totals
+        .pcrlb
+        .as_ref()
+        .and_then(|p| p.bound(totals.states.len()).ok());
     let verdict = verdict::verdict(&filters, true, Some(runs), totals.campaign.steps);
     Summary {
         command: "montecarlo".into(),
@@ -654,7 +751,10 @@ pub fn summarise(totals: &Totals) -> Summary {
         filters,
         verdict,
         runs: Some(runs),
-        pcrlb_rmse_all: Some(totals.pcrlb_rmse_all),
+        pcrlb_rmse_all: Some(bound.as_ref().map(|b| b.rmse_all)),
+        pcrlb_rmse: Some(
+            bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect())),
+        ),
     }
 }
 

@@ -40,6 +40,17 @@ pub struct PlantArgs {
     pub set: Vec<String>,
 }
 
+impl PlantArgs {
+    /// Inputs given a constant with `--set u.<input>=VALUE` (their data column may be absent).
+    pub fn set_input_names(&self) -> Vec<String> {
+        self.set
+            .iter()
+            .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
+            .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
+            .collect()
+    }
+}
+
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {

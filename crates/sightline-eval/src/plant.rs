@@ -13,7 +13,7 @@ use sightline_models::ModelVisitor;
 
 use crate::dataset::Dataset;
 use crate::error::Result;
-use crate::pcrlb::{Bound, pcrlb};
+use crate::pcrlb::{Bound, information_terms, pcrlb};
 use crate::simulate::{SimOptions, simulate};
 
 /// A plant as the commands see it, whatever its concrete model type.
@@ -49,6 +49,8 @@ pub trait AnyPlant: Send + Sync {
     fn clone_box(&self) -> Box<dyn AnyPlant>;
     /// The posterior Cramér–Rao bound along the given true trajectories (see [`crate::pcrlb`]).
     fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound>;
+    /// One trajectory's information terms for the bound (see [`crate::pcrlb::information_terms`]).
+    fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>>;
 }
 
 impl Clone for Box<dyn AnyPlant> {
@@ -256,5 +258,9 @@ where
 
     fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound> {
         pcrlb(&self.model, &self.prior_gaussian(), truths)
+    }
+
+    fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>> {
+        information_terms(&self.model, truth)
     }
 }

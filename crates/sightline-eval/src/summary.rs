@@ -191,6 +191,19 @@ pub struct Summary {
         deserialize_with = "present_or_null"
     )]
     pub pcrlb_rmse_all: Option<Option<f64>>,
+    /// Monte Carlo: the Cramér–Rao bound per state, comparable with each filter's `rmse`.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "state_map_or_null"
+    )]
+    pub pcrlb_rmse: Option<Option<StateMap>>,
+}
+
+fn state_map_or_null<'de, D: Deserializer<'de>>(
+    d: D,
+) -> Result<Option<Option<StateMap>>, D::Error> {
+    Ok(Some(Option::<StateMap>::deserialize(d)?))
 }
 
 fn present_or_null<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Option<f64>>, D::Error> {

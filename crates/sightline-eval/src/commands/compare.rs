@@ -213,6 +213,7 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
         verdict,
         runs: None,
         pcrlb_rmse_all: None,
+        pcrlb_rmse: None,
     }
 }
 
@@ -403,14 +404,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
     // Build once before reading so that a bad spec is reported before any work.
     runner::build_filters(plant.as_ref(), &specs, args.seed)?;
-    let set_inputs: Vec<String> = args
-        .plant
-        .set
-        .iter()
-        .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
-        .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
-        .collect();
-    let schema = Schema::of(plant.as_ref(), &set_inputs);
+    let schema = Schema::of(plant.as_ref(), &args.plant.set_input_names());
     let mut reader = DatasetReader::open(
         &args.data,
         &schema,
