@@ -192,13 +192,15 @@ fn dimension_curves() -> Result<Vec<Curve>, Box<dyn Error>> {
     Ok(curves)
 }
 
-/// Draws curves on log-log axes into an SVG file.
+/// Draws curves on log-log axes into an SVG file, with a dashed grey reference line of slope
+/// `reference` through the first curve's last point.
 fn plot(
     path: &PathBuf,
     title: &str,
     x_label: &str,
     y_label: &str,
     curves: &[Curve],
+    reference: f64,
 ) -> Result<(), Box<dyn Error>> {
     let all = || curves.iter().flat_map(|c| c.points.iter());
     let (x_lo, x_hi) = all().fold((f64::INFINITY, 0.0f64), |(a, b), p| {
@@ -222,9 +224,28 @@ fn plot(
         .configure_mesh()
         .x_desc(x_label)
         .y_desc(y_label)
-        .x_label_formatter(&|v| format!("{v:.0e}"))
+        .x_label_formatter(&|v| {
+            if *v < 1000.0 {
+                format!("{v:.0}")
+            } else {
+                format!("{v:.0e}")
+            }
+        })
         .y_label_formatter(&|v| format!("{v:.0e}"))
         .draw()?;
+    if let Some(&(x1, y1)) = curves.first().and_then(|c| c.points.last()) {
+        // Start where the line enters the plotted range.
+        let x0 = x_lo.max(x1 * (y_lo / y1).powf(1.0 / reference));
+        let line = (0..=20).map(move |i| {
+            let x = x0 * (x1 / x0).powf(i as f64 / 20.0);
+            (x, y1 * (x / x1).powf(reference))
+        });
+        let grey = RGBColor(120, 120, 120);
+        chart
+            .draw_series(DashedLineSeries::new(line, 6, 4, grey.stroke_width(1)))?
+            .label(format!("slope {reference} (reference)"))
+            .legend(move |(x, y)| PathElement::new([(x, y), (x + 18, y)], grey));
+    }
     for (i, curve) in curves.iter().enumerate() {
         let color = Palette99::pick(i).to_rgba();
         chart
@@ -297,6 +318,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         "steps K",
         "wall time of K steps (s)",
         &steps,
+        1.0,
     )?;
     plot(
         &out.join("scaling_particles.svg"),
@@ -304,6 +326,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         "particles N",
         "time per step (s)",
         &particles,
+        1.0,
     )?;
     plot(
         &out.join("scaling_dimension.svg"),
@@ -311,6 +334,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         "states n",
         "time per step (s)",
         &dimension,
+        3.0,
     )?;
     std::fs::write(out.join("scaling.csv"), csv)?;
     std::fs::write(
