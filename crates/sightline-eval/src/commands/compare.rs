@@ -1,9 +1,24 @@
-//! `sightline compare` (in progress).
-use std::path::PathBuf;
+//! `sightline compare`: every filter on one dataset — `DIR/estimates.csv`, `DIR/summary.json`,
+//! `DIR/report.html`, a table and a verdict on the terminal.
+//!
+//! The library call is [`compare`]: it streams any [`RecordSource`] through the filters, writes
+//! the estimates as it goes and returns the summary and the plot series.
 
-use crate::cli::PlantArgs;
+use std::fs::File;
+use std::io::{BufWriter, Write};
+use std::path::{Path, PathBuf};
+
+use sightline_filters::FilterSpec;
+
+use crate::cli::{PlantArgs, configure};
+use crate::dataset::read::{DatasetReader, ReadOptions, RecordSource, Schema};
 use crate::error::{Error, Result};
+use crate::output::OutputDir;
 use crate::plant::AnyPlant;
+use crate::report::{self, terminal_table};
+use crate::runner::{self, EstimatesWriter, NoObserver, Observer, RunConfig, RunOutcome, Series};
+use crate::summary::{self, FilterSummary, StateMap, Status, Summary};
+use crate::verdict;
 
 /// Arguments of `compare`.
 #[derive(Debug, Clone)]
@@ -24,7 +39,300 @@ pub struct CompareArgs {
     pub output: PathBuf,
 }
 
+/// Options of the library call [`compare`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CompareOptions {
+    /// Seed of the sampling filters.
+    pub seed: u64,
+    /// Ask for smoothed accuracy (`smoothed_rmse_all`).
+    pub smooth: bool,
+    /// Rows kept for plots (bounded, decimated).
+    pub series_points: usize,
+}
+
+impl Default for CompareOptions {
+    fn default() -> Self {
+        CompareOptions {
+            seed: 0,
+            smooth: false,
+            series_points: RunConfig::default().series_points,
+        }
+    }
+}
+
+/// What a comparison produced.
+#[derive(Debug, Clone)]
+pub struct Comparison {
+    /// The `summary.json` content.
+    pub summary: Summary,
+    /// The decimated series for plots.
+    pub series: Option<Series>,
+    /// Notes for the report (e.g. about `--smooth`).
+    pub notes: Vec<String>,
+}
+
+impl Comparison {
+    /// Whether any filter failed.
+    pub fn any_failed(&self) -> bool {
+        self.summary
+            .filters
+            .iter()
+            .any(|f| f.status == Status::Failed)
+    }
+
+    /// The report page.
+    pub fn report_html(&self, plant: &dyn AnyPlant, title: &str) -> Result<String> {
+        let plots = match &self.series {
+            Some(s) => {
+                report::compare_plots(&self.summary, s, &plant.states(), &plant.measurements())
+            }
+            None => report::bar_plots(&self.summary),
+        };
+        report::render_html(title, &self.summary, &plots, &self.notes)
+    }
+}
+
+/// The summary of one run of a set of filters over one dataset.
+pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
+    let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    let filters: Vec<FilterSummary> = outcome
+        .filters
+        .iter()
+        .map(|f| {
+            let ok = f.ok();
+            let m = &f.metrics;
+            let keep = |v: Option<f64>| if ok { v } else { None };
+            FilterSummary {
+                label: f.label.clone(),
+                kind: f.kind.clone(),
+                status: if ok { Status::Ok } else { Status::Failed },
+                error: f.error.clone(),
+                rmse: if ok {
+                    m.rmse()
+                        .map(|r| StateMap(states.iter().cloned().zip(r).collect()))
+                } else {
+                    None
+                },
+                rmse_all: keep(m.rmse_all()),
+                anees: keep(m.anees()),
+                nees_in_band: keep(m.nees_in_band()),
+                anis: keep(m.anis()),
+                nis_in_band: keep(m.nis_in_band()),
+                log_likelihood: keep(Some(m.log_likelihood)),
+                seconds_per_step: m.seconds_per_step(),
+                smoothed_rmse_all: None,
+                anees_band: if ok {
+                    m.anees_band().map(|b| b.to_array())
+                } else {
+                    None
+                },
+                nees_tails: if ok { m.nees_tails() } else { None },
+                anis_band: if ok {
+                    m.anis_band().map(|b| b.to_array())
+                } else {
+                    None
+                },
+                whiteness: ok.then(|| m.whiteness()),
+                diagnostics: f.diagnostics.into(),
+                runs: None,
+                failures: None,
+                rmse_all_spread: None,
+                rmse_all_run_mean: None,
+            }
+        })
+        .collect();
+    let verdict = verdict::verdict(&filters, outcome.truth, None, outcome.steps);
+    Summary {
+        command: "compare".into(),
+        model: plant.name().to_string(),
+        steps: outcome.steps,
+        truth: outcome.truth,
+        criteria: summary::criteria(outcome.truth, false),
+        filters,
+        verdict,
+        runs: None,
+        pcrlb_rmse_all: None,
+    }
+}
+
+/// Runs every filter in `specs` over `source` in lockstep. With `estimates`, writes
+/// `estimates.csv` rows to it as the run goes.
+///
+/// ```
+/// use sightline_eval::commands::compare::{compare, CompareOptions};
+/// use sightline_eval::dataset::read::MemorySource;
+/// use sightline_eval::simulate::SimOptions;
+/// use sightline_filters::FilterSpec;
+///
+/// let plants = sightline_eval::shipped();
+/// let cv = plants.iter().find(|p| p.name() == "cv").unwrap();
+/// let data = cv.simulate(200, 1, &SimOptions::default()).unwrap();
+/// let specs = vec![FilterSpec::parse("kf").unwrap(), FilterSpec::parse("ukf").unwrap()];
+/// let result = compare(cv.as_ref(), &specs, &mut MemorySource::new(&data), &CompareOptions::default(), None).unwrap();
+/// assert_eq!(result.summary.filters.len(), 2);
+/// assert!(result.summary.filters[0].rmse_all.unwrap() < 1.0);
+/// ```
+pub fn compare(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    source: &mut dyn RecordSource,
+    options: &CompareOptions,
+    estimates: Option<&mut dyn Write>,
+) -> Result<Comparison> {
+    let filters = runner::build_filters(plant, specs, options.seed)?;
+    let config = RunConfig {
+        seed: options.seed,
+        series_points: options.series_points,
+        ..RunConfig::default()
+    };
+    let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    let outcome = match estimates {
+        Some(out) => {
+            let labels = specs.iter().map(|s| s.label.clone()).collect();
+            let mut writer = EstimatesWriter::new(out, &states, labels)?;
+            let outcome = runner::run(plant, filters, source, &config, &mut writer)?;
+            writer.finish()?;
+            outcome
+        }
+        None => {
+            let mut observer = NoObserver;
+            let observer: &mut dyn Observer = &mut observer;
+            runner::run(plant, filters, source, &config, observer)?
+        }
+    };
+    let mut notes = Vec::new();
+    if options.smooth {
+        // The smoothers' seam: smoothed_rmse_all stays null until a smoother is registered.
+        notes.push(
+            "--smooth: no smoother is available in this build, so smoothed_rmse_all is null."
+                .to_string(),
+        );
+    }
+    let summary = summarise(plant, &outcome);
+    Ok(Comparison {
+        summary,
+        series: outcome.series,
+        notes,
+    })
+}
+
+/// Writes `estimates.csv` (through `write_estimates`), `summary.json` and `report.html` into a
+/// fresh output directory committed atomically onto `output`, prints the table and the verdict
+/// and returns the comparison.
+pub fn compare_to_dir(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    source: &mut dyn RecordSource,
+    options: &CompareOptions,
+    output: &Path,
+    title: &str,
+) -> Result<(Comparison, PathBuf)> {
+    let dir = OutputDir::new(output)?;
+    let estimates_path = dir.path("estimates.csv");
+    let file = File::create(&estimates_path).map_err(|source| Error::Write {
+        path: estimates_path.clone(),
+        source,
+    })?;
+    let mut buffered = BufWriter::with_capacity(1 << 16, file);
+    let comparison = compare(plant, specs, source, options, Some(&mut buffered))?;
+    buffered.flush().map_err(|source| Error::Write {
+        path: estimates_path.clone(),
+        source,
+    })?;
+    drop(buffered);
+    let json = comparison.summary.to_json();
+    dir.write("summary.json", |w| {
+        w.write_all(json.as_bytes())
+            .and_then(|()| w.write_all(b"\n"))
+            .map_err(|source| Error::Write {
+                path: PathBuf::from("summary.json"),
+                source,
+            })
+    })?;
+    let html = comparison.report_html(plant, title)?;
+    dir.write("report.html", |w| {
+        w.write_all(html.as_bytes()).map_err(|source| Error::Write {
+            path: PathBuf::from("report.html"),
+            source,
+        })
+    })?;
+    let target = dir.commit()?;
+    Ok((comparison, target))
+}
+
+/// Prints the table, the verdict and where the report is.
+pub fn print_result(summary: &Summary, dir: &Path, notes: &[String]) {
+    println!("{}", terminal_table(summary));
+    println!();
+    for n in notes {
+        println!("note: {n}");
+    }
+    println!("{}", summary.verdict);
+    println!();
+    println!("report: {}", dir.join("report.html").display());
+}
+
+/// Error to return after the outputs are written when filters failed (exit code 1).
+pub fn failures_error(summary: &Summary) -> Option<Error> {
+    let failed: Vec<&str> = summary
+        .filters
+        .iter()
+        .filter(|f| f.status == Status::Failed)
+        .map(|f| f.label.as_str())
+        .collect();
+    (!failed.is_empty()).then(|| {
+        Error::Run(format!(
+            "{} of {} filters failed ({}); the other results and the report were written",
+            failed.len(),
+            summary.filters.len(),
+            failed.join(", ")
+        ))
+    })
+}
+
 /// Runs `compare`.
-pub fn run(_plants: &[Box<dyn AnyPlant>], _args: &CompareArgs) -> Result<()> {
-    Err(Error::Run("compare is not built yet".into()))
+pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
+    let plant = configure(plants, &args.plant)?;
+    let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
+    // Build once before reading so that a bad spec is reported before any work.
+    runner::build_filters(plant.as_ref(), &specs, args.seed)?;
+    let set_inputs: Vec<String> = args
+        .plant
+        .set
+        .iter()
+        .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
+        .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
+        .collect();
+    let schema = Schema::of(plant.as_ref(), &set_inputs);
+    let mut reader = DatasetReader::open(
+        &args.data,
+        &schema,
+        ReadOptions {
+            nonfinite_as_missing: args.nonfinite_as_missing,
+        },
+    )?;
+    let options = CompareOptions {
+        seed: args.seed,
+        smooth: args.smooth,
+        ..CompareOptions::default()
+    };
+    let title = format!(
+        "Sightline: {} filters on {} ({})",
+        specs.len(),
+        plant.name(),
+        args.data.display()
+    );
+    let (comparison, dir) = compare_to_dir(
+        plant.as_ref(),
+        &specs,
+        &mut reader,
+        &options,
+        &args.output,
+        &title,
+    )?;
+    print_result(&comparison.summary, &dir, &comparison.notes);
+    match failures_error(&comparison.summary) {
+        Some(e) => Err(e),
+        None => Ok(()),
+    }
 }

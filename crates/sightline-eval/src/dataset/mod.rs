@@ -32,6 +32,18 @@ pub struct Record {
     pub x: Option<Vec<f64>>,
 }
 
+impl Record {
+    /// A record with no values, to be filled by a reader (its buffers are reused row to row).
+    pub fn empty() -> Self {
+        Record {
+            t: 0.0,
+            u: Vec::new(),
+            y: Vec::new(),
+            x: None,
+        }
+    }
+}
+
 /// A dataset held in memory.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Dataset {

@@ -1,0 +1,677 @@
+//! Monte Carlo campaigns: M simulated datasets, every filter on each, aggregated per filter.
+//!
+//! Run i simulates its dataset with the seed [`run_seed`]`(S, i)` = `derive_seed(S, [i])` and runs
+//! the filters with that same seed (each filter's stream is keyed by its label), so
+//! `sightline simulate MODEL --seed <run seed>` followed by `sightline compare ... --seed <run
+//! seed>` reproduces run i alone. Runs execute in parallel (rayon) in bounded chunks.
+//!
+//! Aggregates are [`ExactSum`]s, so the totals do not depend on the order of the runs, the
+//! number of threads or how the runs were split into shards: `--shard K/N` runs a contiguous
+//! slice of the runs and writes its [`Totals`] to `partial.json`; [`merge`] adds the shards'
+//! totals and gives bit for bit the totals of the unsharded campaign.
+//!
+//! Per filter: RMSE per state and overall pooled over runs, steps and states; the spread
+//! (sample standard deviation) of the per-run `rmse_all`; ANEES with its 95 % band
+//! χ²(M·n)/M and the share of steps whose M-run average NEES lies inside it (Bar-Shalom, Li &
+//! Kirubarajan 2001, §5.4); the same for the NIS; the mean log-likelihood; failures.
+
+use std::io::IsTerminal;
+use std::ops::Range;
+
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use sightline_core::rng::derive_seed;
+use sightline_filters::{Filter, FilterSpec};
+
+use crate::chi2;
+use crate::dataset::read::MemorySource;
+use crate::error::{Error, Result};
+use crate::exact_sum::ExactSum;
+use crate::metrics::StepMetrics;
+use crate::plant::AnyPlant;
+use crate::runner::{self, Observer, RunConfig};
+use crate::simulate::SimOptions;
+use crate::summary::{self, DiagnosticsSummary, FilterSummary, StateMap, Status, Summary};
+use crate::verdict;
+
+/// Identifier of the `partial.json` format.
+pub const PARTIAL_FORMAT: &str = "sightline-montecarlo-partial/1";
+
+/// Errors kept per filter (those of the lowest run indices).
+const KEPT_ERRORS: usize = 20;
+
+/// The seed of run `i` of a campaign seeded with `seed`.
+///
+/// ```
+/// use sightline_eval::campaign::run_seed;
+/// assert_eq!(run_seed(7, 3), sightline_core::rng::derive_seed(7, &[3]));
+/// ```
+pub fn run_seed(seed: u64, i: u64) -> u64 {
+    derive_seed(seed, &[i])
+}
+
+/// What a campaign is: everything that must agree between shards.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct CampaignSpec {
+    /// Model name.
+    pub model: String,
+    /// The `--set NAME=VALUE` items, as given.
+    pub set: Vec<String>,
+    /// Runs in the whole campaign.
+    pub runs: u64,
+    /// Rows per run.
+    pub steps: u64,
+    /// Campaign seed.
+    pub seed: u64,
+    /// Filter labels, in order.
+    pub filters: Vec<String>,
+}
+
+/// `--shard K/N`: shard K (1-based) of N.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Shard {
+    /// K, from 1.
+    pub index: u64,
+    /// N.
+    pub count: u64,
+}
+
+impl Shard {
+    /// Parses `K/N`.
+    ///
+    /// ```
+    /// use sightline_eval::campaign::Shard;
+    /// assert_eq!(Shard::parse("2/8").unwrap(), Shard { index: 2, count: 8 });
+    /// assert!(Shard::parse("0/8").is_err());
+    /// assert!(Shard::parse("9/8").is_err());
+    /// ```
+    pub fn parse(text: &str) -> Result<Self> {
+        let bad = || {
+            Error::Usage(format!(
+                "--shard '{text}': expected K/N with 1 ≤ K ≤ N, e.g. --shard 2/8"
+            ))
+        };
+        let (k, n) = text.split_once('/').ok_or_else(bad)?;
+        let index: u64 = k.trim().parse().map_err(|_| bad())?;
+        let count: u64 = n.trim().parse().map_err(|_| bad())?;
+        if index == 0 || count == 0 || index > count {
+            return Err(bad());
+        }
+        Ok(Shard { index, count })
+    }
+
+    /// The runs of this shard: a contiguous slice ⌊(K−1)M/N⌋..⌊KM/N⌋.
+    pub fn range(&self, runs: u64) -> Range<u64> {
+        let cut = |k: u64| ((k as u128 * runs as u128) / self.count as u128) as u64;
+        cut(self.index - 1)..cut(self.index)
+    }
+}
+
+/// A failure of one filter in one run.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct RunError {
+    /// Run index.
+    pub run: u64,
+    /// The error.
+    pub error: String,
+}
+
+/// One filter's exact sums over a set of runs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FilterTotals {
+    /// Label.
+    pub label: String,
+    /// Kind.
+    pub kind: String,
+    /// Runs that finished.
+    pub ok_runs: u64,
+    /// Runs that failed.
+    pub failures: u64,
+    /// First errors, by run index.
+    pub errors: Vec<RunError>,
+    /// Σ squared error per state over finished runs and steps.
+    pub sse: Vec<ExactSum>,
+    /// Σ over finished runs of the run's `rmse_all`.
+    pub rmse_run: ExactSum,
+    /// Σ over finished runs of the run's `rmse_all`².
+    pub rmse_run_sq: ExactSum,
+    /// Per step: Σ NEES over finished runs.
+    pub nees_step: Vec<ExactSum>,
+    /// Per step: Σ NIS over finished runs with a measurement at that step.
+    pub nis_step: Vec<ExactSum>,
+    /// Per step: Σ of the NIS degrees of freedom.
+    pub nis_dof_step: Vec<u64>,
+    /// Per step: finished runs with a measurement at that step.
+    pub nis_count_step: Vec<u64>,
+    /// Σ over finished runs of the total log-likelihood.
+    pub log_likelihood: ExactSum,
+    /// Σ seconds in predict + update over all runs (a measurement, not reproducible).
+    pub seconds: ExactSum,
+    /// Steps timed.
+    pub timed_steps: u64,
+    /// Summed counters.
+    pub diagnostics: DiagnosticsSummary,
+}
+
+impl FilterTotals {
+    fn new(label: &str, kind: &str, states: usize, steps: usize) -> Self {
+        FilterTotals {
+            label: label.to_string(),
+            kind: kind.to_string(),
+            ok_runs: 0,
+            failures: 0,
+            errors: Vec::new(),
+            sse: vec![ExactSum::default(); states],
+            rmse_run: ExactSum::default(),
+            rmse_run_sq: ExactSum::default(),
+            nees_step: vec![ExactSum::default(); steps],
+            nis_step: vec![ExactSum::default(); steps],
+            nis_dof_step: vec![0; steps],
+            nis_count_step: vec![0; steps],
+            log_likelihood: ExactSum::default(),
+            seconds: ExactSum::default(),
+            timed_steps: 0,
+            diagnostics: DiagnosticsSummary::default(),
+        }
+    }
+
+    fn add_errors(&mut self, more: impl IntoIterator<Item = RunError>) {
+        self.errors.extend(more);
+        self.errors.sort_by_key(|e| e.run);
+        self.errors.truncate(KEPT_ERRORS);
+    }
+
+    fn merge(&mut self, other: &FilterTotals) -> Result<()> {
+        if other.sse.len() != self.sse.len() || other.nees_step.len() != self.nees_step.len() {
+            return Err(Error::Usage(format!(
+                "filter '{}': shard totals have different sizes",
+                self.label
+            )));
+        }
+        self.ok_runs += other.ok_runs;
+        self.failures += other.failures;
+        self.add_errors(other.errors.iter().cloned());
+        for (a, b) in self.sse.iter_mut().zip(&other.sse) {
+            a.merge(b);
+        }
+        self.rmse_run.merge(&other.rmse_run);
+        self.rmse_run_sq.merge(&other.rmse_run_sq);
+        for (a, b) in self.nees_step.iter_mut().zip(&other.nees_step) {
+            a.merge(b);
+        }
+        for (a, b) in self.nis_step.iter_mut().zip(&other.nis_step) {
+            a.merge(b);
+        }
+        for (a, b) in self.nis_dof_step.iter_mut().zip(&other.nis_dof_step) {
+            *a += b;
+        }
+        for (a, b) in self.nis_count_step.iter_mut().zip(&other.nis_count_step) {
+            *a += b;
+        }
+        self.log_likelihood.merge(&other.log_likelihood);
+        self.seconds.merge(&other.seconds);
+        self.timed_steps += other.timed_steps;
+        self.diagnostics.add(&other.diagnostics);
+        Ok(())
+    }
+}
+
+/// The raw totals of a campaign or of a shard of it: the content of `partial.json`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Totals {
+    /// Always [`PARTIAL_FORMAT`].
+    pub format: String,
+    /// The campaign.
+    pub campaign: CampaignSpec,
+    /// State names in model order.
+    pub states: Vec<String>,
+    /// Measurement components.
+    pub measurements: usize,
+    /// Run ranges covered, sorted and disjoint.
+    pub covered: Vec<[u64; 2]>,
+    /// Per filter, in spec order.
+    pub filters: Vec<FilterTotals>,
+    /// RMSE bound from the posterior Cramér–Rao bound, when computed for the plant (the PCRLB
+    /// recursion plugs in here; `None` until then).
+    pub pcrlb_rmse_all: Option<f64>,
+}
+
+impl Totals {
+    /// Runs covered.
+    pub fn runs_covered(&self) -> u64 {
+        self.covered.iter().map(|[a, b]| b - a).sum()
+    }
+
+    /// Whether every run of the campaign is covered.
+    pub fn complete(&self) -> bool {
+        self.covered == [[0, self.campaign.runs]]
+    }
+}
+
+/// One finished run of one filter, before it joins the totals.
+struct FilterRun {
+    error: Option<String>,
+    sse: Vec<f64>,
+    rmse_all: Option<f64>,
+    nees: Vec<f64>,
+    nis: Vec<(f64, u32)>,
+    log_likelihood: f64,
+    seconds: f64,
+    steps: u64,
+    diagnostics: DiagnosticsSummary,
+}
+
+/// Collects each filter's per-step NEES and NIS in one run.
+struct PerStep {
+    nees: Vec<Vec<f64>>,
+    nis: Vec<Vec<(f64, u32)>>,
+}
+
+impl Observer for PerStep {
+    fn filter_step(
+        &mut self,
+        k: u64,
+        _t: f64,
+        index: usize,
+        _filter: &dyn Filter,
+        _sd: &[f64],
+        step: &StepMetrics,
+    ) -> Result<()> {
+        let k = k as usize;
+        if let Some(v) = self.nees.get_mut(index).and_then(|v| v.get_mut(k)) {
+            *v = step.nees.unwrap_or(f64::NAN);
+        }
+        if let Some(v) = self.nis.get_mut(index).and_then(|v| v.get_mut(k)) {
+            *v = step.nis.map_or((0.0, 0), |(x, d)| (x, d as u32));
+        }
+        Ok(())
+    }
+}
+
+fn one_run(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    campaign: &CampaignSpec,
+    i: u64,
+) -> Result<Vec<FilterRun>> {
+    let seed = run_seed(campaign.seed, i);
+    let steps = campaign.steps as usize;
+    let data = plant
+        .simulate(steps, seed, &SimOptions::default())
+        .map_err(|e| Error::Run(format!("run {i} (seed {seed}): {e}")))?;
+    let filters = runner::build_filters(plant, specs, seed)?;
+    let mut per_step = PerStep {
+        nees: vec![vec![f64::NAN; steps]; specs.len()],
+        nis: vec![vec![(0.0, 0); steps]; specs.len()],
+    };
+    let config = RunConfig {
+        seed,
+        series_points: 0,
+        ..RunConfig::default()
+    };
+    let outcome = runner::run(
+        plant,
+        filters,
+        &mut MemorySource::new(&data),
+        &config,
+        &mut per_step,
+    )?;
+    Ok(outcome
+        .filters
+        .into_iter()
+        .zip(per_step.nees)
+        .zip(per_step.nis)
+        .map(|((f, nees), nis)| FilterRun {
+            error: f
+                .error
+                .clone()
+                .map(|e| format!("run {i} (seed {seed}): {e}")),
+            sse: f.metrics.sse.clone(),
+            rmse_all: f.metrics.rmse_all(),
+            nees,
+            nis,
+            log_likelihood: f.metrics.log_likelihood,
+            seconds: f.metrics.seconds,
+            steps: f.metrics.steps,
+            diagnostics: f.diagnostics.into(),
+        })
+        .collect())
+}
+
+fn add_run(totals: &mut Totals, i: u64, runs: Vec<FilterRun>) {
+    for (t, r) in totals.filters.iter_mut().zip(runs) {
+        t.seconds.add(r.seconds);
+        t.timed_steps += r.steps;
+        t.diagnostics.add(&r.diagnostics);
+        if let Some(error) = r.error {
+            t.failures += 1;
+            t.add_errors([RunError { run: i, error }]);
+            continue;
+        }
+        t.ok_runs += 1;
+        for (a, v) in t.sse.iter_mut().zip(&r.sse) {
+            a.add(*v);
+        }
+        let rmse = r.rmse_all.unwrap_or(f64::NAN);
+        t.rmse_run.add(rmse);
+        t.rmse_run_sq.add(rmse * rmse);
+        for (a, v) in t.nees_step.iter_mut().zip(&r.nees) {
+            a.add(*v);
+        }
+        for (k, (nis, dof)) in r.nis.iter().enumerate() {
+            if *dof > 0 {
+                t.nis_step[k].add(*nis);
+                t.nis_dof_step[k] += u64::from(*dof);
+                t.nis_count_step[k] += 1;
+            }
+        }
+        t.log_likelihood.add(r.log_likelihood);
+    }
+}
+
+/// Runs `range` of the campaign's runs of `plant` with `specs` and returns their totals. A
+/// progress bar is drawn on stderr when it is a terminal.
+pub fn run_campaign(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    campaign: &CampaignSpec,
+    range: Range<u64>,
+) -> Result<Totals> {
+    if campaign.steps == 0 {
+        return Err(Error::Usage("--steps must be at least 1".into()));
+    }
+    if campaign.runs == 0 {
+        return Err(Error::Usage("--runs must be at least 1".into()));
+    }
+    // Build once here so a bad spec is a usage error before any work starts.
+    let probe = runner::build_filters(plant, specs, campaign.seed)?;
+    let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    let steps = campaign.steps as usize;
+    let mut totals = Totals {
+        format: PARTIAL_FORMAT.into(),
+        campaign: campaign.clone(),
+        states: states.clone(),
+        measurements: plant.measurements().len(),
+        covered: if range.is_empty() {
+            Vec::new()
+        } else {
+            vec![[range.start, range.end]]
+        },
+        filters: probe
+            .iter()
+            .map(|f| FilterTotals::new(f.label(), f.kind(), states.len(), steps))
+            .collect(),
+        pcrlb_rmse_all: None,
+    };
+    drop(probe);
+    let progress = std::io::stderr().is_terminal().then(|| {
+        let bar = indicatif::ProgressBar::new(range.end - range.start);
+        bar.set_style(
+            indicatif::ProgressStyle::with_template(
+                "{msg} [{bar:40}] {pos}/{len} runs, {elapsed} elapsed, ~{eta} left",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+            .progress_chars("=> "),
+        );
+        bar.set_message(format!("{} montecarlo", campaign.model));
+        bar
+    });
+    // Bounded chunks keep memory flat however many runs there are.
+    let chunk = (rayon::current_num_threads() * 8).max(16) as u64;
+    let mut start = range.start;
+    while start < range.end {
+        let end = (start + chunk).min(range.end);
+        let results: Vec<Result<Vec<FilterRun>>> = (start..end)
+            .into_par_iter()
+            .map(|i| {
+                let r = one_run(plant, specs, campaign, i);
+                if let Some(bar) = &progress {
+                    bar.inc(1);
+                }
+                r
+            })
+            .collect();
+        for (i, r) in (start..end).zip(results) {
+            add_run(&mut totals, i, r?);
+        }
+        start = end;
+    }
+    if let Some(bar) = progress {
+        bar.finish_and_clear();
+    }
+    Ok(totals)
+}
+
+/// Adds shard totals into the totals of the whole campaign. The shards must come from the same
+/// campaign and cover disjoint runs; the result covers their union.
+pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
+    let mut parts = parts.into_iter();
+    let Some(mut total) = parts.next() else {
+        return Err(Error::Usage("merge: no shard given".into()));
+    };
+    for part in parts {
+        if part.campaign != total.campaign {
+            return Err(Error::Usage(format!(
+                "merge: the shards come from different campaigns ({:?} vs {:?}); model, --set, \
+                 --runs, --steps, --seed and -f must all agree",
+                total.campaign, part.campaign
+            )));
+        }
+        if part.states != total.states || part.measurements != total.measurements {
+            return Err(Error::Usage(
+                "merge: the shards describe plants of different shapes".into(),
+            ));
+        }
+        for [a, b] in &part.covered {
+            if let Some([c, d]) = total.covered.iter().find(|[c, d]| a < d && c < b) {
+                return Err(Error::Usage(format!(
+                    "merge: runs {a}..{b} overlap runs {c}..{d} already merged (a shard given twice?)"
+                )));
+            }
+        }
+        if part.pcrlb_rmse_all != total.pcrlb_rmse_all {
+            return Err(Error::Usage(
+                "merge: the shards disagree on the PCRLB".into(),
+            ));
+        }
+        for (a, b) in total.filters.iter_mut().zip(&part.filters) {
+            a.merge(b)?;
+        }
+        total.covered.extend(part.covered.iter().copied());
+        total.covered.sort();
+        let mut joined: Vec<[u64; 2]> = Vec::new();
+        for r in total.covered.drain(..) {
+            match joined.last_mut() {
+                Some(last) if last[1] == r[0] => last[1] = r[1],
+                _ => joined.push(r),
+            }
+        }
+        total.covered = joined;
+    }
+    Ok(total)
+}
+
+/// Runs of the campaign that `totals` does not cover, as `a..b` ranges.
+pub fn missing_runs(totals: &Totals) -> Vec<Range<u64>> {
+    let mut missing = Vec::new();
+    let mut next = 0;
+    for [a, b] in &totals.covered {
+        if *a > next {
+            missing.push(next..*a);
+        }
+        next = *b;
+    }
+    if next < totals.campaign.runs {
+        missing.push(next..totals.campaign.runs);
+    }
+    missing
+}
+
+/// The M-run average NEES per step (NaN where no run finished).
+pub fn average_nees(t: &FilterTotals) -> Vec<f64> {
+    t.nees_step
+        .iter()
+        .map(|s| {
+            if t.ok_runs == 0 {
+                f64::NAN
+            } else {
+                s.value() / t.ok_runs as f64
+            }
+        })
+        .collect()
+}
+
+/// The average NIS per step over the runs with a measurement there.
+pub fn average_nis(t: &FilterTotals) -> Vec<f64> {
+    t.nis_step
+        .iter()
+        .zip(&t.nis_count_step)
+        .map(|(s, &c)| {
+            if c == 0 {
+                f64::NAN
+            } else {
+                s.value() / c as f64
+            }
+        })
+        .collect()
+}
+
+fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
+    let n = totals.states.len();
+    let steps = totals.campaign.steps as usize;
+    let m_runs = t.ok_runs;
+    let ok = m_runs > 0;
+    let pooled = (m_runs * steps as u64) as f64;
+    let rmse = ok.then(|| {
+        StateMap(
+            totals
+                .states
+                .iter()
+                .zip(&t.sse)
+                .map(|(s, e)| (s.clone(), (e.value() / pooled).sqrt()))
+                .collect(),
+        )
+    });
+    let mut total_sse = ExactSum::default();
+    t.sse.iter().for_each(|e| total_sse.merge(e));
+    let rmse_all = (ok && n > 0).then(|| (total_sse.value() / (pooled * n as f64)).sqrt());
+    let run_mean = ok.then(|| t.rmse_run.value() / m_runs as f64);
+    let spread = (m_runs >= 2).then(|| {
+        let s = t.rmse_run.value();
+        let s2 = t.rmse_run_sq.value();
+        let var = (s2 - s * s / m_runs as f64) / (m_runs - 1) as f64;
+        var.max(0.0).sqrt()
+    });
+    let band = chi2::average_band(n, m_runs as usize);
+    let nees_avg = average_nees(t);
+    let mut nees_all = ExactSum::default();
+    t.nees_step.iter().for_each(|e| nees_all.merge(e));
+    let anees = ok.then(|| nees_all.value() / pooled);
+    let nees_in_band = match (ok, band) {
+        (true, Some(b)) if steps > 0 => {
+            Some(nees_avg.iter().filter(|v| b.contains(**v)).count() as f64 / steps as f64)
+        }
+        _ => None,
+    };
+    let nis_avg = average_nis(t);
+    let mut nis_all = ExactSum::default();
+    t.nis_step.iter().for_each(|e| nis_all.merge(e));
+    let nis_count: u64 = t.nis_count_step.iter().sum();
+    let nis_dof: u64 = t.nis_dof_step.iter().sum();
+    let anis = (ok && nis_count > 0).then(|| nis_all.value() / nis_count as f64);
+    let mut inside = 0usize;
+    let mut judged = 0usize;
+    for (k, v) in nis_avg.iter().enumerate() {
+        if let Some(b) = chi2::pooled_band(t.nis_dof_step[k] as usize, t.nis_count_step[k] as usize)
+        {
+            judged += 1;
+            if b.contains(*v) {
+                inside += 1;
+            }
+        }
+    }
+    let nis_in_band = (ok && judged > 0).then(|| inside as f64 / judged as f64);
+    // The band of a per-step M-run average with the mean number of components present.
+    let anis_band = if ok && steps > 0 {
+        chi2::pooled_band((nis_dof / steps as u64) as usize, m_runs as usize)
+    } else {
+        None
+    };
+    let error = t.errors.first().map(|e| {
+        if t.failures > 1 {
+            format!("{} (and {} more failed runs)", e.error, t.failures - 1)
+        } else {
+            e.error.clone()
+        }
+    });
+    FilterSummary {
+        label: t.label.clone(),
+        kind: t.kind.clone(),
+        status: if ok { Status::Ok } else { Status::Failed },
+        error,
+        rmse,
+        rmse_all,
+        anees,
+        nees_in_band,
+        anis,
+        nis_in_band,
+        log_likelihood: ok.then(|| t.log_likelihood.value() / m_runs as f64),
+        seconds_per_step: if t.timed_steps > 0 {
+            t.seconds.value() / t.timed_steps as f64
+        } else {
+            0.0
+        },
+        smoothed_rmse_all: None,
+        anees_band: if ok { band.map(|b| b.to_array()) } else { None },
+        nees_tails: None,
+        anis_band: anis_band.map(|b| b.to_array()),
+        whiteness: None,
+        diagnostics: t.diagnostics,
+        runs: Some(m_runs),
+        failures: Some(t.failures),
+        rmse_all_spread: spread,
+        rmse_all_run_mean: run_mean,
+    }
+}
+
+/// The `summary.json` of a campaign (or of the runs a shard covers).
+pub fn summarise(totals: &Totals) -> Summary {
+    let filters: Vec<FilterSummary> = totals
+        .filters
+        .iter()
+        .map(|t| filter_summary(totals, t))
+        .collect();
+    let runs = totals.runs_covered();
+    let verdict = verdict::verdict(&filters, true, Some(runs), totals.campaign.steps);
+    Summary {
+        command: "montecarlo".into(),
+        model: totals.campaign.model.clone(),
+        steps: totals.campaign.steps,
+        truth: true,
+        criteria: summary::criteria(true, true),
+        filters,
+        verdict,
+        runs: Some(runs),
+        pcrlb_rmse_all: Some(totals.pcrlb_rmse_all),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn shards_partition_the_runs() {
+        for runs in [0u64, 1, 7, 100, 101] {
+            for count in 1..=9u64 {
+                let mut next = 0;
+                for index in 1..=count {
+                    let r = Shard { index, count }.range(runs);
+                    assert_eq!(r.start, next);
+                    next = r.end;
+                }
+                assert_eq!(next, runs);
+            }
+        }
+    }
+}

@@ -1,0 +1,884 @@
+//! `report.html`: one self-contained page (inline SVG drawn by plotters, no network) to decide
+//! from — the verdict, the criteria it used, the summary table and the plots:
+//! per state the truth, the measurements and each filter's mean with its ±2σ band; NEES and NIS
+//! over time with their χ² bands; innovation autocorrelation with its ±1.96/√N band; RMSE and
+//! cost bars. A small inline script marks each plot that the browser laid out
+//! (`data-rendered`), so a headless browser can check that every plot rendered.
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+use crate::chi2;
+use crate::error::{Error, Result};
+use crate::runner::Series;
+use crate::summary::{FilterSummary, Status, Summary};
+use crate::verdict::{duration, sig};
+
+/// Plot size in pixels.
+const WIDTH: u32 = 900;
+const HEIGHT: u32 = 340;
+
+/// Colours of successive filters (a colour-blind-safe qualitative set, Okabe & Ito 2008).
+const COLOURS: [RGBColor; 8] = [
+    RGBColor(0, 114, 178),
+    RGBColor(213, 94, 0),
+    RGBColor(0, 158, 115),
+    RGBColor(204, 121, 167),
+    RGBColor(230, 159, 0),
+    RGBColor(86, 180, 233),
+    RGBColor(120, 120, 120),
+    RGBColor(240, 228, 66),
+];
+
+/// The colour of filter number `i`.
+pub fn colour(i: usize) -> RGBColor {
+    COLOURS[i % COLOURS.len()]
+}
+
+/// A line of a line plot.
+#[derive(Debug, Clone)]
+pub struct Line {
+    /// Legend name.
+    pub name: String,
+    /// Colour.
+    pub colour: RGBColor,
+    /// Points; NaN points are left out.
+    pub points: Vec<(f64, f64)>,
+    /// Stroke width.
+    pub width: u32,
+}
+
+/// A shaded band between two curves sharing x values.
+#[derive(Debug, Clone)]
+pub struct Area {
+    /// Legend name (empty: no legend entry).
+    pub name: String,
+    /// Colour (drawn translucent).
+    pub colour: RGBColor,
+    /// Opacity.
+    pub opacity: f64,
+    /// (x, lower, upper) triples; NaN entries are left out.
+    pub points: Vec<(f64, f64, f64)>,
+}
+
+/// Scatter dots: legend name, colour, points.
+pub type Dots = (String, RGBColor, Vec<(f64, f64)>);
+
+/// A line plot with optional bands and dots.
+#[derive(Debug, Clone)]
+pub struct LinePlot {
+    /// Identifier (used in `data-plot`).
+    pub id: String,
+    /// Title.
+    pub title: String,
+    /// X axis label.
+    pub x_label: String,
+    /// Y axis label.
+    pub y_label: String,
+    /// Shaded bands, drawn first.
+    pub areas: Vec<Area>,
+    /// Lines.
+    pub lines: Vec<Line>,
+    /// Scatter dots (name, colour, points).
+    pub dots: Vec<Dots>,
+    /// Plot log₁₀ of the values (for NEES/NIS spanning decades).
+    pub log_y: bool,
+    /// Caption under the plot.
+    pub caption: String,
+}
+
+/// A bar plot, one bar per filter.
+#[derive(Debug, Clone)]
+pub struct BarPlot {
+    /// Identifier.
+    pub id: String,
+    /// Title.
+    pub title: String,
+    /// Y axis label.
+    pub y_label: String,
+    /// (label, value, optional ± whisker, colour).
+    pub bars: Vec<(String, f64, Option<f64>, RGBColor)>,
+    /// Caption.
+    pub caption: String,
+}
+
+/// Any plot in the report.
+#[derive(Debug, Clone)]
+pub enum Plot {
+    /// Lines over time or lag.
+    Lines(LinePlot),
+    /// Bars per filter.
+    Bars(BarPlot),
+}
+
+impl Plot {
+    fn id(&self) -> &str {
+        match self {
+            Plot::Lines(p) => &p.id,
+            Plot::Bars(p) => &p.id,
+        }
+    }
+    fn caption(&self) -> &str {
+        match self {
+            Plot::Lines(p) => &p.caption,
+            Plot::Bars(p) => &p.caption,
+        }
+    }
+}
+
+fn plot_error<E: std::error::Error>(e: E) -> Error {
+    Error::Run(format!("drawing a report plot: {e}"))
+}
+
+fn finite_range(values: impl Iterator<Item = f64>) -> (f64, f64) {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for v in values.filter(|v| v.is_finite()) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if !lo.is_finite() {
+        return (0.0, 1.0);
+    }
+    if hi - lo <= f64::EPSILON * hi.abs().max(1.0) {
+        let pad = 0.5 * hi.abs().max(1.0);
+        return (lo - pad, hi + pad);
+    }
+    let pad = 0.04 * (hi - lo);
+    (lo - pad, hi + pad)
+}
+
+/// Lower bound applied before taking log₁₀ (NEES/NIS of exactly 0 would be −∞).
+const LOG_FLOOR: f64 = 1e-6;
+
+fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Result<()> {
+    let ty = |v: f64| {
+        if plot.log_y {
+            v.max(LOG_FLOOR).log10()
+        } else {
+            v
+        }
+    };
+    let xs = plot
+        .lines
+        .iter()
+        .flat_map(|l| l.points.iter().map(|p| p.0))
+        .chain(plot.areas.iter().flat_map(|a| a.points.iter().map(|p| p.0)))
+        .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| p.0)));
+    let (x0, x1) = finite_range(xs);
+    let ys = plot
+        .lines
+        .iter()
+        .flat_map(|l| l.points.iter().map(|p| ty(p.1)))
+        .chain(
+            plot.areas
+                .iter()
+                .flat_map(|a| a.points.iter().flat_map(|p| [ty(p.1), ty(p.2)])),
+        )
+        .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| ty(p.1))));
+    let (y0, y1) = finite_range(ys);
+    let mut chart = ChartBuilder::on(area)
+        .caption(&plot.title, ("sans-serif", 18))
+        .margin(8)
+        .x_label_area_size(36)
+        .y_label_area_size(64)
+        .build_cartesian_2d(x0..x1, y0..y1)
+        .map_err(plot_error)?;
+    let log = plot.log_y;
+    // Tick values computed as k·step carry rounding noise (e.g. −5.55e−17 for 0).
+    let snap = |v: f64, span: f64| if v.abs() < 1e-9 * span { 0.0 } else { v };
+    let (x_span, y_span) = (x1 - x0, y1 - y0);
+    let y_format = move |v: &f64| {
+        if log {
+            sig(10f64.powf(*v), 2)
+        } else {
+            sig(snap(*v, y_span), 3)
+        }
+    };
+    let x_format = move |v: &f64| sig(snap(*v, x_span), 3);
+    chart
+        .configure_mesh()
+        .x_desc(plot.x_label.as_str())
+        .y_desc(plot.y_label.as_str())
+        .x_label_formatter(&x_format)
+        .y_label_formatter(&y_format)
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(plot_error)?;
+    let mut legend = false;
+    for a in &plot.areas {
+        let pts: Vec<(f64, f64, f64)> = a
+            .points
+            .iter()
+            .map(|&(x, lo, hi)| (x, ty(lo), ty(hi)))
+            .filter(|(x, lo, hi)| x.is_finite() && lo.is_finite() && hi.is_finite())
+            .collect();
+        if pts.is_empty() {
+            continue;
+        }
+        let mut outline: Vec<(f64, f64)> = pts.iter().map(|p| (p.0, p.2)).collect();
+        outline.extend(pts.iter().rev().map(|p| (p.0, p.1)));
+        let style = a.colour.mix(a.opacity).filled();
+        let series = chart
+            .draw_series(std::iter::once(Polygon::new(outline, style)))
+            .map_err(plot_error)?;
+        if !a.name.is_empty() {
+            legend = true;
+            series
+                .label(a.name.as_str())
+                .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 16, y + 5)], style));
+        }
+    }
+    for (name, c, pts) in &plot.dots {
+        let c = *c;
+        let pts: Vec<(f64, f64)> = pts
+            .iter()
+            .map(|&(x, y)| (x, ty(y)))
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .collect();
+        if pts.is_empty() {
+            continue;
+        }
+        legend = true;
+        chart
+            .draw_series(
+                pts.into_iter()
+                    .map(|p| Circle::new(p, 2, c.mix(0.5).filled())),
+            )
+            .map_err(plot_error)?
+            .label(name.as_str())
+            .legend(move |(x, y)| Circle::new((x + 8, y), 3, c.filled()));
+    }
+    for l in &plot.lines {
+        let pts: Vec<(f64, f64)> = l
+            .points
+            .iter()
+            .map(|&(x, y)| (x, ty(y)))
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .collect();
+        if pts.is_empty() {
+            continue;
+        }
+        let style = l.colour.stroke_width(l.width);
+        legend = true;
+        chart
+            .draw_series(LineSeries::new(pts, style))
+            .map_err(plot_error)?
+            .label(l.name.as_str())
+            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], style));
+    }
+    if legend {
+        chart
+            .configure_series_labels()
+            .background_style(WHITE.mix(0.85))
+            .border_style(RGBColor(180, 180, 180))
+            .position(SeriesLabelPosition::UpperRight)
+            .draw()
+            .map_err(plot_error)?;
+    }
+    Ok(())
+}
+
+fn draw_bars(plot: &BarPlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Result<()> {
+    let top = plot
+        .bars
+        .iter()
+        .map(|b| b.1 + b.2.unwrap_or(0.0))
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, f64::max);
+    let top = if top > 0.0 { top * 1.12 } else { 1.0 };
+    let count = plot.bars.len().max(1) as i32;
+    let labels: Vec<String> = plot.bars.iter().map(|b| b.0.clone()).collect();
+    let mut chart = ChartBuilder::on(area)
+        .caption(&plot.title, ("sans-serif", 18))
+        .margin(8)
+        .x_label_area_size(36)
+        .y_label_area_size(64)
+        .build_cartesian_2d((0..count).into_segmented(), 0.0..top)
+        .map_err(plot_error)?;
+    let x_format = |v: &SegmentValue<i32>| match v {
+        SegmentValue::CenterOf(i) => labels.get(*i as usize).cloned().unwrap_or_default(),
+        _ => String::new(),
+    };
+    let y_format = |v: &f64| sig(*v, 3);
+    chart
+        .configure_mesh()
+        .disable_x_mesh()
+        .x_labels(plot.bars.len().max(1))
+        .x_label_formatter(&x_format)
+        .y_label_formatter(&y_format)
+        .y_desc(plot.y_label.as_str())
+        .light_line_style(RGBColor(235, 235, 235))
+        .draw()
+        .map_err(plot_error)?;
+    chart
+        .draw_series(
+            plot.bars
+                .iter()
+                .enumerate()
+                .filter(|(_, b)| b.1.is_finite())
+                .map(|(i, b)| {
+                    let i = i as i32;
+                    let mut r = Rectangle::new(
+                        [
+                            (SegmentValue::Exact(i), 0.0),
+                            (SegmentValue::Exact(i + 1), b.1),
+                        ],
+                        b.3.mix(0.85).filled(),
+                    );
+                    r.set_margin(0, 0, 12, 12);
+                    r
+                }),
+        )
+        .map_err(plot_error)?;
+    chart
+        .draw_series(
+            plot.bars
+                .iter()
+                .enumerate()
+                .filter_map(|(i, b)| b.2.filter(|s| s.is_finite()).map(|s| (i as i32, b.1, s)))
+                .map(|(i, v, s)| {
+                    PathElement::new(
+                        vec![
+                            (SegmentValue::CenterOf(i), (v - s).max(0.0)),
+                            (SegmentValue::CenterOf(i), v + s),
+                        ],
+                        BLACK.stroke_width(2),
+                    )
+                }),
+        )
+        .map_err(plot_error)?;
+    Ok(())
+}
+
+/// Draws one plot as an SVG string.
+pub fn render_svg(plot: &Plot) -> Result<String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_error)?;
+        match plot {
+            Plot::Lines(p) => draw_lines(p, &root)?,
+            Plot::Bars(p) => draw_bars(p, &root)?,
+        }
+        root.present().map_err(plot_error)?;
+    }
+    // Keep the <svg> element only (no XML prolog inside HTML).
+    let start = svg.find("<svg").unwrap_or(0);
+    Ok(svg[start..].to_string())
+}
+
+/// Escapes text for HTML.
+pub fn escape(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            _ => out.push(c),
+        }
+    }
+    out
+}
+
+fn opt(v: Option<f64>, digits: usize) -> String {
+    v.map_or("–".into(), |v| sig(v, digits))
+}
+
+fn share(v: Option<f64>) -> String {
+    v.map_or("–".into(), |v| format!("{:.1} %", 100.0 * v))
+}
+
+fn band_text(b: Option<[f64; 2]>) -> String {
+    b.map_or(String::new(), |[lo, hi]| {
+        format!(" [{}, {}]", sig(lo, 3), sig(hi, 3))
+    })
+}
+
+/// The columns of the summary table (terminal and HTML), one row per filter.
+pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
+    let campaign = summary.runs.is_some();
+    let mut header = vec!["filter".to_string(), "status".to_string()];
+    if summary.truth {
+        header.push("rmse_all".into());
+        if campaign {
+            header.push("± spread".into());
+        }
+        header.push("ANEES [95 % band]".into());
+        header.push("NEES in band".into());
+    }
+    header.push("ANIS [95 % band]".into());
+    header.push("NIS in band".into());
+    if !campaign {
+        header.push("white".into());
+    }
+    header.push("log-lik".into());
+    header.push("per step".into());
+    if campaign {
+        header.push("runs ok/failed".into());
+    }
+    let rows = summary
+        .filters
+        .iter()
+        .map(|f: &FilterSummary| {
+            let mut row = vec![
+                f.label.clone(),
+                match f.status {
+                    Status::Ok => "ok".into(),
+                    Status::Failed => "failed".into(),
+                },
+            ];
+            if summary.truth {
+                row.push(opt(f.rmse_all, 4));
+                if campaign {
+                    row.push(opt(f.rmse_all_spread, 2));
+                }
+                row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
+                row.push(share(f.nees_in_band));
+            }
+            row.push(format!("{}{}", opt(f.anis, 3), band_text(f.anis_band)));
+            row.push(share(f.nis_in_band));
+            if !campaign {
+                row.push(
+                    match f.whiteness.as_ref().and_then(|w| w.white) {
+                        Some(true) => "yes",
+                        Some(false) => "no",
+                        None => "–",
+                    }
+                    .into(),
+                );
+            }
+            row.push(opt(f.log_likelihood, 6));
+            row.push(duration(f.seconds_per_step));
+            if campaign {
+                row.push(format!(
+                    "{}/{}",
+                    f.runs.unwrap_or(0),
+                    f.failures.unwrap_or(0)
+                ));
+            }
+            row
+        })
+        .collect();
+    (header, rows)
+}
+
+/// The summary table for the terminal (comfy-table).
+pub fn terminal_table(summary: &Summary) -> String {
+    let (header, rows) = table_rows(summary);
+    let mut table = comfy_table::Table::new();
+    table.load_style(comfy_table::presets::UTF8_FULL_CONDENSED);
+    table.set_header(header);
+    for row in rows {
+        table.add_row(row);
+    }
+    table.to_string()
+}
+
+/// The full report page.
+pub fn render_html(
+    title: &str,
+    summary: &Summary,
+    plots: &[Plot],
+    notes: &[String],
+) -> Result<String> {
+    let mut html = String::with_capacity(64 * 1024 + plots.len() * 128 * 1024);
+    html.push_str("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">");
+    html.push_str(&format!("<title>{}</title>", escape(title)));
+    html.push_str(
+        "<style>body{font-family:sans-serif;max-width:960px;margin:1.5em auto;color:#222}\
+         table{border-collapse:collapse;font-size:0.9em}td,th{border:1px solid #ccc;\
+         padding:3px 7px;text-align:right}td:first-child,th:first-child{text-align:left}\
+         .failed{color:#b00}figure{margin:1.2em 0}figcaption{font-size:0.85em;color:#555}\
+         .verdict{background:#f4f7fb;border-left:4px solid #0072b2;padding:0.6em 1em}\
+         .verdict p{margin:0.3em 0}</style></head><body>\n",
+    );
+    html.push_str(&format!("<h1>{}</h1>\n", escape(title)));
+    html.push_str("<h2>Verdict</h2>\n<div class=\"verdict\">");
+    for line in summary.verdict.lines() {
+        html.push_str(&format!("<p>{}</p>", escape(line)));
+    }
+    html.push_str("</div>\n<h2>Criteria used</h2>\n<ul>");
+    for c in &summary.criteria {
+        html.push_str(&format!("<li>{}</li>", escape(c)));
+    }
+    html.push_str("</ul>\n");
+    if !summary.truth {
+        html.push_str(
+            "<p>The data carries no true state (<code>x.</code> columns), so accuracy and NEES \
+             cannot be measured: the judgement rests on NIS consistency, innovation whiteness \
+             and log-likelihood.</p>\n",
+        );
+    }
+    for n in notes {
+        html.push_str(&format!("<p>{}</p>\n", escape(n)));
+    }
+    html.push_str("<h2>Summary</h2>\n<table><thead><tr>");
+    let (header, rows) = table_rows(summary);
+    for h in &header {
+        html.push_str(&format!("<th>{}</th>", escape(h)));
+    }
+    html.push_str("</tr></thead><tbody>\n");
+    for (row, f) in rows.iter().zip(&summary.filters) {
+        let class = if f.status == Status::Failed {
+            " class=\"failed\""
+        } else {
+            ""
+        };
+        html.push_str(&format!("<tr{class}>"));
+        for cell in row {
+            html.push_str(&format!("<td>{}</td>", escape(cell)));
+        }
+        html.push_str("</tr>\n");
+    }
+    html.push_str("</tbody></table>\n");
+    for f in summary.filters.iter().filter(|f| f.error.is_some()) {
+        html.push_str(&format!(
+            "<p class=\"failed\">{}: {}</p>\n",
+            escape(&f.label),
+            escape(f.error.as_deref().unwrap_or(""))
+        ));
+    }
+    html.push_str("<h2>Plots</h2>\n");
+    for plot in plots {
+        let svg = render_svg(plot)?;
+        html.push_str(&format!(
+            "<figure class=\"plot\" data-plot=\"{}\">{svg}<figcaption>{}</figcaption></figure>\n",
+            escape(plot.id()),
+            escape(plot.caption())
+        ));
+    }
+    html.push_str(
+        "<script>(function(){var f=document.querySelectorAll('figure.plot'),ok=0;\
+         f.forEach(function(e){var s=e.querySelector('svg'),r=false;if(s){var b=s.getBBox();\
+         var n=s.querySelectorAll('polyline,path,polygon,rect,circle,line').length;\
+         r=b.width>0&&b.height>0&&n>0;}e.setAttribute('data-rendered',r?'yes':'no');if(r)ok++;});\
+         document.body.setAttribute('data-plots',String(f.length));\
+         document.body.setAttribute('data-rendered',String(ok));})();</script>\n",
+    );
+    html.push_str("</body></html>\n");
+    Ok(html)
+}
+
+fn time_band(series: &Series, lo: f64, hi: f64) -> Vec<(f64, f64, f64)> {
+    match (series.t.first(), series.t.last()) {
+        (Some(&a), Some(&b)) => vec![(a, lo, hi), (b, lo, hi)],
+        _ => Vec::new(),
+    }
+}
+
+/// The plots of a single-dataset comparison.
+pub fn compare_plots(
+    summary: &Summary,
+    series: &Series,
+    states: &[sightline_core::Variable],
+    measurements: &[sightline_core::Variable],
+) -> Vec<Plot> {
+    let mut plots = Vec::new();
+    let (n, m, nf) = (series.states, series.measurements, series.filters);
+    let rows = series.len();
+    let labels: Vec<&str> = summary.filters.iter().map(|f| f.label.as_str()).collect();
+    let mut shown_measurement = vec![false; m];
+    for (i, state) in states.iter().enumerate().take(n) {
+        let mut plot = LinePlot {
+            id: format!("state-{}", state.name),
+            title: format!("{} [{}]", state.name, state.unit),
+            x_label: "t [s]".into(),
+            y_label: format!("{} [{}]", state.name, state.unit),
+            areas: Vec::new(),
+            lines: Vec::new(),
+            dots: Vec::new(),
+            log_y: false,
+            caption: format!(
+                "State {}: each filter's posterior mean with its ±2σ band{}.",
+                state.name,
+                if summary.truth { ", and the truth" } else { "" }
+            ),
+        };
+        if let Some(j) = measurements
+            .iter()
+            .position(|v| v.name == state.name && v.unit == state.unit)
+        {
+            shown_measurement[j] = true;
+            plot.dots.push((
+                format!("y.{}", measurements[j].name),
+                RGBColor(90, 90, 90),
+                (0..rows)
+                    .map(|r| (series.t[r], series.y[r * m + j]))
+                    .collect(),
+            ));
+            plot.caption
+                .push_str(" Dots: the measurement of the same quantity.");
+        }
+        for f in 0..nf {
+            let at = |r: usize| (r * nf + f) * n + i;
+            plot.areas.push(Area {
+                name: String::new(),
+                colour: colour(f),
+                opacity: 0.15,
+                points: (0..rows)
+                    .map(|r| {
+                        let (mu, sd) = (series.mean[at(r)], series.sd[at(r)]);
+                        (series.t[r], mu - 2.0 * sd, mu + 2.0 * sd)
+                    })
+                    .collect(),
+            });
+            plot.lines.push(Line {
+                name: labels.get(f).copied().unwrap_or("").to_string(),
+                colour: colour(f),
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.mean[at(r)]))
+                    .collect(),
+                width: 1,
+            });
+        }
+        if summary.truth {
+            plot.lines.push(Line {
+                name: "truth".into(),
+                colour: BLACK,
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.truth[r * n + i]))
+                    .collect(),
+                width: 2,
+            });
+        }
+        plots.push(Plot::Lines(plot));
+    }
+    for (j, meas) in measurements.iter().enumerate().take(m) {
+        if shown_measurement[j] {
+            continue;
+        }
+        plots.push(Plot::Lines(LinePlot {
+            id: format!("measurement-{}", meas.name),
+            title: format!("measurement {} [{}]", meas.name, meas.unit),
+            x_label: "t [s]".into(),
+            y_label: format!("{} [{}]", meas.name, meas.unit),
+            areas: Vec::new(),
+            lines: Vec::new(),
+            dots: vec![(
+                format!("y.{}", meas.name),
+                RGBColor(90, 90, 90),
+                (0..rows)
+                    .map(|r| (series.t[r], series.y[r * m + j]))
+                    .collect(),
+            )],
+            log_y: false,
+            caption: format!(
+                "Measurement {} as recorded; gaps are missing values.",
+                meas.name
+            ),
+        }));
+    }
+    if summary.truth {
+        if let Some(b) = chi2::band(n) {
+            plots.push(Plot::Lines(LinePlot {
+                id: "nees".into(),
+                title: "NEES over time".into(),
+                x_label: "t [s]".into(),
+                y_label: "NEES (log scale)".into(),
+                areas: vec![Area {
+                    name: format!("95 % band of χ²({n})"),
+                    colour: RGBColor(0, 158, 115),
+                    opacity: 0.18,
+                    points: time_band(series, b.lo, b.hi),
+                }],
+                lines: (0..nf)
+                    .map(|f| Line {
+                        name: labels.get(f).copied().unwrap_or("").to_string(),
+                        colour: colour(f),
+                        points: (0..rows)
+                            .map(|r| (series.t[r], series.nees[r * nf + f]))
+                            .collect(),
+                        width: 1,
+                    })
+                    .collect(),
+                dots: Vec::new(),
+                log_y: true,
+                caption: format!(
+                    "Normalised estimation error squared eᵀP⁻¹e of each posterior; a consistent \
+                     filter stays inside the χ²({n}) band about 95 % of the time \
+                     (Bar-Shalom et al. 2001, §5.4)."
+                ),
+            }));
+        }
+    }
+    if let Some(b) = chi2::band(m) {
+        plots.push(Plot::Lines(LinePlot {
+            id: "nis".into(),
+            title: "NIS over time".into(),
+            x_label: "t [s]".into(),
+            y_label: "NIS (log scale)".into(),
+            areas: vec![Area {
+                name: format!("95 % band of χ²({m})"),
+                colour: RGBColor(0, 158, 115),
+                opacity: 0.18,
+                points: time_band(series, b.lo, b.hi),
+            }],
+            lines: (0..nf)
+                .map(|f| Line {
+                    name: labels.get(f).copied().unwrap_or("").to_string(),
+                    colour: colour(f),
+                    points: (0..rows)
+                        .map(|r| (series.t[r], series.nis[r * nf + f]))
+                        .collect(),
+                    width: 1,
+                })
+                .collect(),
+            dots: Vec::new(),
+            log_y: true,
+            caption: format!(
+                "Normalised innovation squared νᵀS⁻¹ν of each update; the band is that of all {m} \
+                 components present (fewer components present lower the expected value)."
+            ),
+        }));
+    }
+    for j in 0..m {
+        let mut lines = Vec::new();
+        let mut half = None;
+        for (f, fs) in summary.filters.iter().enumerate() {
+            let Some(w) = &fs.whiteness else { continue };
+            let Some(rho) = w.autocorrelation.get(j) else {
+                continue;
+            };
+            half = half.or(w.band.get(j).copied().flatten());
+            lines.push(Line {
+                name: fs.label.clone(),
+                colour: colour(f),
+                points: rho
+                    .iter()
+                    .enumerate()
+                    .map(|(lag, r)| ((lag + 1) as f64, r.unwrap_or(f64::NAN)))
+                    .collect(),
+                width: 2,
+            });
+        }
+        if lines.is_empty() {
+            continue;
+        }
+        let lags = lines.first().map_or(1, |l| l.points.len()) as f64;
+        let name = measurements
+            .get(j)
+            .map_or(format!("{j}"), |v| v.name.clone());
+        plots.push(Plot::Lines(LinePlot {
+            id: format!("whiteness-{name}"),
+            title: format!("innovation autocorrelation, {name}"),
+            x_label: "lag [steps]".into(),
+            y_label: "normalised autocorrelation".into(),
+            areas: half
+                .map(|h| Area {
+                    name: "95 % band ±1.96/√N".into(),
+                    colour: RGBColor(0, 158, 115),
+                    opacity: 0.18,
+                    points: vec![(1.0, -h, h), (lags, -h, h)],
+                })
+                .into_iter()
+                .collect(),
+            lines,
+            dots: Vec::new(),
+            log_y: false,
+            caption: format!(
+                "Normalised sample autocorrelation of the standardised innovation of {name}; a \
+                 white sequence stays inside ±1.96/√N at about 95 % of the lags (Mehra, IEEE TAC \
+                 15(2), 1970)."
+            ),
+        }));
+    }
+    plots.extend(bar_plots(summary));
+    plots
+}
+
+/// RMSE (with Monte Carlo spread) and cost bars.
+pub fn bar_plots(summary: &Summary) -> Vec<Plot> {
+    let mut plots = Vec::new();
+    let ok: Vec<(usize, &FilterSummary)> = summary
+        .filters
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| f.status == Status::Ok)
+        .collect();
+    if summary.truth && ok.iter().any(|(_, f)| f.rmse_all.is_some()) {
+        plots.push(Plot::Bars(BarPlot {
+            id: "rmse".into(),
+            title: "accuracy: rmse_all".into(),
+            y_label: "rmse_all".into(),
+            bars: ok
+                .iter()
+                .map(|(i, f)| {
+                    (
+                        f.label.clone(),
+                        f.rmse_all.unwrap_or(f64::NAN),
+                        f.rmse_all_spread,
+                        colour(*i),
+                    )
+                })
+                .collect(),
+            caption: if summary.runs.is_some() {
+                "Root mean squared error over runs, steps and states; whiskers: spread (standard \
+                 deviation) of the per-run values."
+                    .into()
+            } else {
+                "Root mean squared error over steps and states.".into()
+            },
+        }));
+    }
+    plots.push(Plot::Bars(BarPlot {
+        id: "cost".into(),
+        title: "cost: microseconds per step".into(),
+        y_label: "µs per step".into(),
+        bars: ok
+            .iter()
+            .map(|(i, f)| (f.label.clone(), f.seconds_per_step * 1e6, None, colour(*i)))
+            .collect(),
+        caption: "Wall-clock time of predict + update per step on this machine.".into(),
+    }));
+    plots
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn renders_svg_with_drawn_elements() {
+        let plot = Plot::Lines(LinePlot {
+            id: "x".into(),
+            title: "t".into(),
+            x_label: "x".into(),
+            y_label: "y".into(),
+            areas: vec![Area {
+                name: "band".into(),
+                colour: RED,
+                opacity: 0.2,
+                points: vec![(0.0, 1.0, 2.0), (1.0, 1.0, 2.0)],
+            }],
+            lines: vec![Line {
+                name: "a<b".into(),
+                colour: BLUE,
+                points: vec![(0.0, 1.0), (0.5, f64::NAN), (1.0, 3.0)],
+                width: 1,
+            }],
+            dots: Vec::new(),
+            log_y: true,
+            caption: String::new(),
+        });
+        let svg = render_svg(&plot).unwrap();
+        assert!(svg.starts_with("<svg"), "{}", &svg[..40]);
+        assert!(svg.contains("<polyline") || svg.contains("<path"));
+        assert!(svg.contains("a&lt;b"), "legend text is escaped");
+        let bars = Plot::Bars(BarPlot {
+            id: "b".into(),
+            title: "b".into(),
+            y_label: "v".into(),
+            bars: vec![
+                ("kf".into(), 1.0, Some(0.1), RED),
+                ("ukf".into(), 2.0, None, BLUE),
+            ],
+            caption: String::new(),
+        });
+        let svg = render_svg(&bars).unwrap();
+        assert!(svg.contains("<rect"));
+        assert!(svg.contains("ukf"));
+    }
+}

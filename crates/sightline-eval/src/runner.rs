@@ -1,0 +1,542 @@
+//! The runner: every filter in lockstep over one stream of dataset rows.
+//!
+//! Time line of a dataset (rows k = 0, 1, ...):
+//! - row 0: `update(y(0), u(0), t(0))` from the prior — the prior is the belief at t(0) before
+//!   the first measurement;
+//! - row k ≥ 1: `predict(u(k−1), t(k−1), t(k) − t(k−1))`, then `update(y(k), u(k), t(k))`;
+//! - the posterior after each update is what is recorded (estimates, errors, NEES); the update's
+//!   innovation gives the NIS, the whiteness test and the log-likelihood.
+//!
+//! NaN components of `y` are missing and skipped by the filters. Rows are read one at a time,
+//! each filter's posterior is handed to an [`Observer`] (which may write `estimates.csv` as it
+//! goes), metrics are accumulated online and the plot series is decimated to a bounded size, so
+//! memory does not grow with the length of the file. A filter that fails is marked failed with
+//! its error (which names the step) and the others go on.
+
+use std::time::Instant;
+
+use sightline_core::rng::derive_seed;
+use sightline_filters::{Diagnostics, Filter, FilterSpec};
+
+use crate::dataset::read::RecordSource;
+use crate::dataset::{Layout, Record};
+use crate::error::{Error, Result};
+use crate::metrics::{DEFAULT_WHITENESS_LAGS, FilterMetrics, StepMetrics, normalised_squared};
+use crate::plant::AnyPlant;
+
+/// How a run is carried out.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RunConfig {
+    /// Seed of the sampling filters; each filter's own seed is [`filter_seed`]`(seed, label)`.
+    pub seed: u64,
+    /// Rows kept for plots: at most twice this many (0 keeps none).
+    pub series_points: usize,
+    /// Lags of the whiteness test.
+    pub whiteness_lags: usize,
+}
+
+impl Default for RunConfig {
+    fn default() -> Self {
+        RunConfig {
+            seed: 0,
+            series_points: 1000,
+            whiteness_lags: DEFAULT_WHITENESS_LAGS,
+        }
+    }
+}
+
+/// 64-bit FNV-1a hash of a label (Fowler, Noll & Vo): a fixed, portable key.
+fn label_key(label: &str) -> u64 {
+    label.bytes().fold(0xcbf2_9ce4_8422_2325, |h, b| {
+        (h ^ u64::from(b)).wrapping_mul(0x0000_0100_0000_01b3)
+    })
+}
+
+/// The seed a filter with `label` gets in a run seeded with `seed`. It depends only on the run
+/// seed and the label, so adding or removing other filters never changes a filter's result.
+///
+/// ```
+/// use sightline_eval::runner::filter_seed;
+/// assert_eq!(filter_seed(3, "pf"), filter_seed(3, "pf"));
+/// assert_ne!(filter_seed(3, "pf"), filter_seed(3, "pf:particles=500"));
+/// ```
+pub fn filter_seed(seed: u64, label: &str) -> u64 {
+    derive_seed(seed, &[label_key(label)])
+}
+
+/// Builds every filter a list of specs names for `plant` (on the calling thread: filters are not
+/// `Send`).
+pub fn build_filters(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    seed: u64,
+) -> Result<Vec<Box<dyn Filter>>> {
+    specs
+        .iter()
+        .map(|s| {
+            plant
+                .build_filter(s, filter_seed(seed, &s.label))
+                .map_err(Error::from)
+        })
+        .collect()
+}
+
+/// Parses filter spec strings; with none, every kind that applies to the plant (`kf` only for
+/// linear plants). Duplicated labels are rejected since the label identifies a filter.
+pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterSpec>> {
+    let parsed: Vec<FilterSpec> = if specs.is_empty() {
+        sightline_filters::default_kinds(plant.is_linear())
+            .into_iter()
+            .map(FilterSpec::parse)
+            .collect::<Result<_, _>>()?
+    } else {
+        specs
+            .iter()
+            .map(|s| FilterSpec::parse(s))
+            .collect::<Result<_, _>>()?
+    };
+    for (i, s) in parsed.iter().enumerate() {
+        if parsed[..i].iter().any(|p| p.label == s.label) {
+            return Err(Error::Usage(format!(
+                "-f {}: the same filter spec is given twice; labels must be unique",
+                s.label
+            )));
+        }
+    }
+    Ok(parsed)
+}
+
+/// Watches each filter's posterior after each update.
+pub trait Observer {
+    /// Row `k` at time `t`: filter number `index` has updated; `sd` is the square root of its
+    /// covariance diagonal and `step` its NEES/NIS at this step.
+    fn filter_step(
+        &mut self,
+        k: u64,
+        t: f64,
+        index: usize,
+        filter: &dyn Filter,
+        sd: &[f64],
+        step: &StepMetrics,
+    ) -> Result<()>;
+}
+
+/// An observer that does nothing.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct NoObserver;
+
+impl Observer for NoObserver {
+    fn filter_step(
+        &mut self,
+        _: u64,
+        _: f64,
+        _: usize,
+        _: &dyn Filter,
+        _: &[f64],
+        _: &StepMetrics,
+    ) -> Result<()> {
+        Ok(())
+    }
+}
+
+/// Writes `estimates.csv` as the run goes: `filter,t,x.<state>...,sd.<state>...`, one row per
+/// filter per step, in row order then filter order. A failed filter has no rows from its failing
+/// step on.
+pub struct EstimatesWriter<W: std::io::Write> {
+    csv: csv::Writer<W>,
+    labels: Vec<String>,
+    cell: String,
+}
+
+impl<W: std::io::Write> EstimatesWriter<W> {
+    /// Starts the file with its header.
+    pub fn new(out: W, states: &[String], labels: Vec<String>) -> Result<Self> {
+        let mut csv = csv::Writer::from_writer(out);
+        let mut header = vec!["filter".to_string(), "t".to_string()];
+        header.extend(states.iter().map(|s| format!("x.{s}")));
+        header.extend(states.iter().map(|s| format!("sd.{s}")));
+        csv.write_record(&header).map_err(csv_write)?;
+        Ok(EstimatesWriter {
+            csv,
+            labels,
+            cell: String::new(),
+        })
+    }
+
+    fn number(&mut self, v: f64) -> Result<()> {
+        use std::fmt::Write;
+        self.cell.clear();
+        let _ = write!(self.cell, "{v}");
+        self.csv.write_field(&self.cell).map_err(csv_write)
+    }
+
+    /// Flushes the file.
+    pub fn finish(mut self) -> Result<()> {
+        self.csv
+            .flush()
+            .map_err(|e| Error::Run(format!("writing estimates.csv: {e}")))
+    }
+}
+
+fn csv_write(e: csv::Error) -> Error {
+    Error::Run(format!("writing estimates.csv: {e}"))
+}
+
+impl<W: std::io::Write> Observer for EstimatesWriter<W> {
+    fn filter_step(
+        &mut self,
+        _k: u64,
+        t: f64,
+        index: usize,
+        filter: &dyn Filter,
+        sd: &[f64],
+        _step: &StepMetrics,
+    ) -> Result<()> {
+        let label = self.labels.get(index).map(String::as_str).unwrap_or("");
+        self.csv.write_field(label).map_err(csv_write)?;
+        self.number(t)?;
+        for &m in filter.mean() {
+            self.number(m)?;
+        }
+        for &s in sd {
+            self.number(s)?;
+        }
+        self.csv.write_record(None::<&[u8]>).map_err(csv_write)
+    }
+}
+
+/// A bounded, decimated record of a run for plots: every `stride`-th row, with the stride
+/// doubled (and every other kept row dropped) whenever the store fills up.
+#[derive(Debug, Clone)]
+pub struct Series {
+    /// States per row.
+    pub states: usize,
+    /// Measurements per row.
+    pub measurements: usize,
+    /// Filters per row.
+    pub filters: usize,
+    /// Current decimation: rows kept are multiples of `stride`.
+    pub stride: u64,
+    capacity: usize,
+    /// Time of each kept row.
+    pub t: Vec<f64>,
+    /// Truth, `states` per row (NaN without truth).
+    pub truth: Vec<f64>,
+    /// Measurements, `measurements` per row (NaN missing).
+    pub y: Vec<f64>,
+    /// Posterior means, `filters × states` per row (NaN after a failure).
+    pub mean: Vec<f64>,
+    /// Posterior standard deviations, like `mean`.
+    pub sd: Vec<f64>,
+    /// NEES, `filters` per row (NaN without truth).
+    pub nees: Vec<f64>,
+    /// NIS, `filters` per row (NaN without a measurement).
+    pub nis: Vec<f64>,
+    /// NIS degrees of freedom, `filters` per row (0 without a measurement).
+    pub nis_dof: Vec<u32>,
+}
+
+impl Series {
+    fn new(states: usize, measurements: usize, filters: usize, capacity: usize) -> Self {
+        Series {
+            states,
+            measurements,
+            filters,
+            stride: 1,
+            capacity,
+            t: Vec::new(),
+            truth: Vec::new(),
+            y: Vec::new(),
+            mean: Vec::new(),
+            sd: Vec::new(),
+            nees: Vec::new(),
+            nis: Vec::new(),
+            nis_dof: Vec::new(),
+        }
+    }
+
+    /// Rows kept.
+    pub fn len(&self) -> usize {
+        self.t.len()
+    }
+
+    /// Whether no row is kept.
+    pub fn is_empty(&self) -> bool {
+        self.t.is_empty()
+    }
+
+    fn begin_row(&mut self, record: &Record) {
+        self.t.push(record.t);
+        match &record.x {
+            Some(x) => self.truth.extend_from_slice(x),
+            None => self
+                .truth
+                .extend(std::iter::repeat_n(f64::NAN, self.states)),
+        }
+        self.y.extend_from_slice(&record.y);
+        let f = self.filters;
+        let n = self.states;
+        self.mean.extend(std::iter::repeat_n(f64::NAN, f * n));
+        self.sd.extend(std::iter::repeat_n(f64::NAN, f * n));
+        self.nees.extend(std::iter::repeat_n(f64::NAN, f));
+        self.nis.extend(std::iter::repeat_n(f64::NAN, f));
+        self.nis_dof.extend(std::iter::repeat_n(0, f));
+    }
+
+    fn set_filter(&mut self, index: usize, mean: &[f64], sd: &[f64], step: &StepMetrics) {
+        let row = self.t.len() - 1;
+        let (f, n) = (self.filters, self.states);
+        let at = (row * f + index) * n;
+        self.mean[at..at + n].copy_from_slice(&mean[..n]);
+        self.sd[at..at + n].copy_from_slice(&sd[..n]);
+        self.nees[row * f + index] = step.nees.unwrap_or(f64::NAN);
+        if let Some((nis, dof)) = step.nis {
+            self.nis[row * f + index] = nis;
+            self.nis_dof[row * f + index] = dof as u32;
+        }
+    }
+
+    fn compact_if_full(&mut self) {
+        if self.capacity == 0 || self.t.len() < 2 * self.capacity {
+            return;
+        }
+        fn keep_even<T: Copy>(v: &mut Vec<T>, width: usize) {
+            if width == 0 {
+                return;
+            }
+            let rows = v.len() / width;
+            let mut w = 0;
+            for r in (0..rows).step_by(2) {
+                for c in 0..width {
+                    v[w * width + c] = v[r * width + c];
+                }
+                w += 1;
+            }
+            v.truncate(w * width);
+        }
+        let (n, m, f) = (self.states, self.measurements, self.filters);
+        keep_even(&mut self.t, 1);
+        keep_even(&mut self.truth, n);
+        keep_even(&mut self.y, m);
+        keep_even(&mut self.mean, f * n);
+        keep_even(&mut self.sd, f * n);
+        keep_even(&mut self.nees, f);
+        keep_even(&mut self.nis, f);
+        keep_even(&mut self.nis_dof, f);
+        self.stride *= 2;
+    }
+}
+
+/// What became of one filter over a run.
+#[derive(Debug, Clone)]
+pub struct FilterOutcome {
+    /// Label (the spec string).
+    pub label: String,
+    /// Kind.
+    pub kind: String,
+    /// The error that stopped the filter, if it failed.
+    pub error: Option<String>,
+    /// Row at which it failed.
+    pub failed_at: Option<u64>,
+    /// Metrics over the rows it processed.
+    pub metrics: FilterMetrics,
+    /// The filter's own counters at the end.
+    pub diagnostics: Diagnostics,
+}
+
+impl FilterOutcome {
+    /// Whether the filter ran to the end.
+    pub fn ok(&self) -> bool {
+        self.error.is_none()
+    }
+}
+
+/// The result of running a set of filters over one dataset.
+#[derive(Debug, Clone)]
+pub struct RunOutcome {
+    /// Rows processed.
+    pub steps: u64,
+    /// Dataset layout.
+    pub layout: Layout,
+    /// Whether the data carried truth.
+    pub truth: bool,
+    /// One outcome per filter, in spec order.
+    pub filters: Vec<FilterOutcome>,
+    /// The decimated series for plots (`None` with `series_points = 0`).
+    pub series: Option<Series>,
+}
+
+/// Per-filter working state of a run.
+struct Lane {
+    filter: Box<dyn Filter>,
+    outcome: FilterOutcome,
+    sd: Vec<f64>,
+    error: Vec<f64>,
+    work: Vec<f64>,
+    z: Vec<f64>,
+}
+
+impl Lane {
+    fn fail(&mut self, k: u64, message: String) {
+        self.outcome.error = Some(message);
+        self.outcome.failed_at = Some(k);
+    }
+}
+
+/// Runs `filters` in lockstep over `source` (see the module docs for the time line).
+///
+/// Dataset errors stop the run (`Err`); filter failures do not: they are recorded in the
+/// filter's outcome and the other filters continue.
+pub fn run(
+    plant: &dyn AnyPlant,
+    filters: Vec<Box<dyn Filter>>,
+    source: &mut dyn RecordSource,
+    config: &RunConfig,
+    observer: &mut dyn Observer,
+) -> Result<RunOutcome> {
+    let n = plant.states().len();
+    let m = plant.measurements().len();
+    let layout = source.layout().clone();
+    let truth = !layout.states.is_empty();
+    let mut lanes: Vec<Lane> = filters
+        .into_iter()
+        .map(|filter| Lane {
+            outcome: FilterOutcome {
+                label: filter.label().to_string(),
+                kind: filter.kind().to_string(),
+                error: None,
+                failed_at: None,
+                metrics: FilterMetrics::new(n, m, config.whiteness_lags),
+                diagnostics: Diagnostics::default(),
+            },
+            filter,
+            sd: vec![0.0; n],
+            error: vec![0.0; n],
+            work: vec![0.0; n * n],
+            z: vec![0.0; n],
+        })
+        .collect();
+    let mut series =
+        (config.series_points > 0).then(|| Series::new(n, m, lanes.len(), config.series_points));
+    let mut record = Record::empty();
+    let mut previous: Option<(f64, Vec<f64>)> = None;
+    let mut k: u64 = 0;
+    while source.next_into(&mut record)? {
+        let keep = series
+            .as_mut()
+            .map(|s| {
+                let keep = k % s.stride == 0;
+                if keep {
+                    s.begin_row(&record);
+                }
+                keep
+            })
+            .unwrap_or(false);
+        for (index, lane) in lanes.iter_mut().enumerate() {
+            if !lane.outcome.ok() {
+                continue;
+            }
+            let started = Instant::now();
+            let stepped = match &previous {
+                Some((t0, u0)) => lane.filter.predict(u0, *t0, record.t - t0),
+                None => Ok(()),
+            }
+            .and_then(|()| lane.filter.update(&record.y, &record.u, record.t));
+            lane.outcome.metrics.seconds += started.elapsed().as_secs_f64();
+            if let Err(e) = stepped {
+                lane.fail(k, e.to_string());
+                continue;
+            }
+            let label = &lane.outcome.label;
+            let mean = lane.filter.mean();
+            let cov = lane.filter.covariance();
+            if mean.len() != n || cov.len() != n * n {
+                let message = format!(
+                    "filter '{label}' failed at step {k}: its estimate has {} values, the model \
+                     has {n} states",
+                    mean.len()
+                );
+                lane.fail(k, message);
+                continue;
+            }
+            if mean.iter().chain(cov).any(|v| !v.is_finite()) {
+                let message = format!(
+                    "filter '{label}' failed at step {k} (t = {}): non-finite posterior mean or \
+                     covariance",
+                    record.t
+                );
+                lane.fail(k, message);
+                continue;
+            }
+            for i in 0..n {
+                lane.sd[i] = cov[i + i * n].max(0.0).sqrt();
+            }
+            let mut step = StepMetrics {
+                nees: None,
+                nis: None,
+            };
+            if let Some(x) = &record.x {
+                for i in 0..n {
+                    lane.error[i] = x[i] - mean[i];
+                }
+                let Some(nees) = normalised_squared(cov, &lane.error, &mut lane.work, &mut lane.z)
+                else {
+                    let message = format!(
+                        "filter '{label}' failed at step {k} (t = {}): the posterior covariance \
+                         is not positive definite, so its NEES is undefined",
+                        record.t
+                    );
+                    lane.fail(k, message);
+                    continue;
+                };
+                lane.outcome.metrics.add_error(&lane.error, nees);
+                step.nees = Some(nees);
+            }
+            let increment = lane.filter.log_likelihood_increment();
+            if !increment.is_finite() {
+                let message = format!(
+                    "filter '{label}' failed at step {k} (t = {}): the log-likelihood increment \
+                     is not finite",
+                    record.t
+                );
+                lane.fail(k, message);
+                continue;
+            }
+            step.nis =
+                lane.outcome
+                    .metrics
+                    .add_update(&record.y, lane.filter.innovation(), increment);
+            observer.filter_step(k, record.t, index, lane.filter.as_ref(), &lane.sd, &step)?;
+            if keep {
+                if let Some(s) = series.as_mut() {
+                    s.set_filter(index, lane.filter.mean(), &lane.sd, &step);
+                }
+            }
+        }
+        if let Some(s) = series.as_mut() {
+            s.compact_if_full();
+        }
+        match &mut previous {
+            Some((t0, u0)) => {
+                *t0 = record.t;
+                u0.clone_from(&record.u);
+            }
+            None => previous = Some((record.t, record.u.clone())),
+        }
+        k += 1;
+    }
+    let filters = lanes
+        .into_iter()
+        .map(|mut lane| {
+            lane.outcome.diagnostics = lane.filter.diagnostics();
+            lane.outcome
+        })
+        .collect();
+    Ok(RunOutcome {
+        steps: k,
+        layout,
+        truth,
+        filters,
+        series,
+    })
+}
