@@ -191,11 +191,14 @@ where
 /// ```
 pub fn lower_triangular_factor<R: Dim>(a: &mut OMatrix<f64, R, Dyn>) -> OMatrix<f64, R, R>
 where
-    DefaultAllocator: Allocator<R, Dyn> + Allocator<R, R>,
+    DefaultAllocator: Allocator<R, Dyn> + Allocator<R, R> + Allocator<R>,
 {
     let (rows, _) = a.shape_generic();
     let r = rows.value();
     let c = a.ncols();
+    // Per-row factors of the reflection, f_j = β (a_j · v) for the rows j below the pivot.
+    let mut f = OVector::<f64, R>::zeros_generic(rows, nalgebra::U1);
+    let f = f.as_mut_slice();
     for i in 0..r.min(c) {
         let x0 = a[(i, i)];
         let tail2: f64 = ((i + 1)..c).map(|k| a[(i, k)] * a[(i, k)]).sum();
@@ -207,16 +210,35 @@ where
         let alpha = if x0 > 0.0 { -norm } else { norm };
         let v0 = x0 - alpha;
         let beta = 2.0 / (v0 * v0 + tail2);
-        for j in (i + 1)..r {
-            let mut dot = a[(j, i)] * v0;
-            for k in (i + 1)..c {
-                dot += a[(j, k)] * a[(i, k)];
+        // Rows j > i become a_j − β (a_j · v) v with v = (v0, a_i,i+1 .. a_i,c−1). The storage
+        // is column-major, so both passes walk columns (contiguous) and keep one running dot
+        // product per row, summed in the same order as a row-by-row loop would.
+        let (head, tail) = a.as_mut_slice().split_at_mut((i + 1) * r);
+        let pivot_column = &mut head[i * r..];
+        let below = (i + 1)..r;
+        for (fj, &aji) in f[below.clone()]
+            .iter_mut()
+            .zip(&pivot_column[below.clone()])
+        {
+            *fj = aji * v0;
+        }
+        for column in tail.chunks_exact(r) {
+            let vk = column[i];
+            for (fj, &ajk) in f[below.clone()].iter_mut().zip(&column[below.clone()]) {
+                *fj += ajk * vk;
             }
-            let f = beta * dot;
-            a[(j, i)] -= f * v0;
-            for k in (i + 1)..c {
-                let vk = a[(i, k)];
-                a[(j, k)] -= f * vk;
+        }
+        for (fj, aji) in f[below.clone()]
+            .iter_mut()
+            .zip(&mut pivot_column[below.clone()])
+        {
+            *fj *= beta;
+            *aji -= *fj * v0;
+        }
+        for column in tail.chunks_exact_mut(r) {
+            let vk = column[i];
+            for (ajk, &fj) in column[below.clone()].iter_mut().zip(&f[below.clone()]) {
+                *ajk -= fj * vk;
             }
         }
         a[(i, i)] = alpha;
