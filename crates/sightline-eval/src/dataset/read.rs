@@ -115,6 +115,15 @@ pub fn quoted(text: &str) -> String {
     out
 }
 
+/// A hint for a cell that runs over several lines: a quote opened in it was never closed.
+fn spans_lines(text: &str) -> &'static str {
+    if text.contains('\n') {
+        " (the cell spans lines: a '\"' opened in it is never closed)"
+    } else {
+        ""
+    }
+}
+
 fn list(prefix: &str, names: &[String]) -> String {
     if names.is_empty() {
         "(none)".into()
@@ -441,8 +450,8 @@ impl DatasetReader {
                 path,
                 1,
                 1,
-                "the file is empty; expected a header row with 't', the y. columns and the u. \
-                 columns",
+                "the file has no header row (it is empty or blank); expected a header row with \
+                 't', the y. columns and the u. columns",
             ));
         }
         let line = header.position().map_or(1, |p| p.line());
@@ -551,8 +560,9 @@ impl DatasetReader {
                 Err(_) => Err(at(
                     field + 1,
                     format!(
-                        "{what} '{}' is {shown}; expected a number",
-                        columns.names[field]
+                        "{what} '{}' is {shown}; expected a number{}",
+                        columns.names[field],
+                        spans_lines(text)
                     ),
                 )),
             }
@@ -589,8 +599,10 @@ impl DatasetReader {
                         return Err(at(
                             field + 1,
                             format!(
-                                "measurement '{}' is {shown}; expected a number or an empty cell",
-                                columns.names[field]
+                                "measurement '{}' is {shown}; expected a number or an empty \
+                                 cell{}",
+                                columns.names[field],
+                                spans_lines(text)
                             ),
                         ));
                     }
