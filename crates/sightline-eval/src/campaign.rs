@@ -417,6 +417,8 @@ fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
     if let (Some(p), Some(terms)) = (totals.pcrlb.as_mut(), terms) {
         p.add(i, terms);
     }
+    totals.covered.push([i, i + 1]);
+    join_ranges(&mut totals.covered);
     for (t, r) in totals.filters.iter_mut().zip(runs) {
         t.seconds.add(r.seconds);
         t.timed_steps += r.steps;
@@ -447,34 +449,46 @@ fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
     }
 }
 
-/// Runs `range` of the campaign's runs of `plant` with `specs` and returns their totals. A
-/// progress bar is drawn on stderr when it is a terminal.
-pub fn run_campaign(
+/// Most rows per run of a campaign. A campaign keeps every filter's per-step NEES and NIS sums
+/// (for the averaged plots and bands) and holds each run's dataset while it runs, so its memory
+/// grows with `--steps`; longer runs belong to `simulate` + `compare`, which stream.
+pub const MAX_STEPS: u64 = 1_000_000;
+
+/// Memory budget of the runs in flight at once (their datasets and per-step statistics): the
+/// chunk of runs executed in parallel shrinks for long runs to stay within it. Chunking never
+/// changes a result (the totals are exact sums).
+const IN_FLIGHT_BYTES: u64 = 256 << 20;
+
+/// Checks a campaign and returns its empty totals (no run covered yet); every spec is built
+/// once so that a bad one is a usage error before any work starts.
+pub fn empty_totals(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     campaign: &CampaignSpec,
-    range: Range<u64>,
 ) -> Result<Totals> {
     if campaign.steps == 0 {
         return Err(Error::Usage("--steps must be at least 1".into()));
     }
+    if campaign.steps > MAX_STEPS {
+        return Err(Error::Usage(format!(
+            "--steps {}: a Monte Carlo run has at most {MAX_STEPS} rows (the campaign keeps \
+             per-step statistics of every filter); for longer runs simulate a file with \
+             `sightline simulate` and run `sightline compare` on it, which streams",
+            campaign.steps
+        )));
+    }
     if campaign.runs == 0 {
         return Err(Error::Usage("--runs must be at least 1".into()));
     }
-    // Build once here so a bad spec is a usage error before any work starts.
     let probe = runner::build_filters(plant, specs, campaign.seed)?;
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
     let steps = campaign.steps as usize;
-    let mut totals = Totals {
+    Ok(Totals {
         format: PARTIAL_FORMAT.into(),
         campaign: campaign.clone(),
         states: states.clone(),
         measurements: plant.measurements().len(),
-        covered: if range.is_empty() {
-            Vec::new()
-        } else {
-            vec![[range.start, range.end]]
-        },
+        covered: Vec::new(),
         filters: probe
             .iter()
             .map(|f| FilterTotals::new(f.label(), f.kind(), states.len(), steps))
@@ -488,11 +502,39 @@ pub fn run_campaign(
                 error: None,
             }
         }),
-    };
+    })
+}
+
+/// Runs `range` of the campaign's runs of `plant` with `specs` and returns their totals. A
+/// progress bar is drawn on stderr when it is a terminal.
+pub fn run_campaign(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    campaign: &CampaignSpec,
+    range: Range<u64>,
+) -> Result<Totals> {
+    let mut totals = empty_totals(plant, specs, campaign)?;
+    run_ranges(plant, specs, &[range], &mut totals, &mut |_| Ok(()))?;
+    Ok(totals)
+}
+
+/// Runs the given ranges of the campaign's runs into `totals` (from [`empty_totals`] or a
+/// checkpoint), in parallel chunks; `after_chunk` sees the totals after every chunk (e.g. to
+/// save a checkpoint). On an error — Ctrl-C included — the runs that finished are still added
+/// to `totals` (and marked covered) before the error is returned, so nothing finished is lost;
+/// an interrupt takes precedence over other errors.
+pub fn run_ranges(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    ranges: &[Range<u64>],
+    totals: &mut Totals,
+    after_chunk: &mut dyn FnMut(&Totals) -> Result<()>,
+) -> Result<()> {
+    let campaign = totals.campaign.clone();
     let with_pcrlb = totals.pcrlb.is_some();
-    drop(probe);
+    let count: u64 = ranges.iter().map(|r| r.end.saturating_sub(r.start)).sum();
     let progress = std::io::stderr().is_terminal().then(|| {
-        let bar = indicatif::ProgressBar::new(range.end - range.start);
+        let bar = indicatif::ProgressBar::new(count);
         bar.set_style(
             indicatif::ProgressStyle::with_template(
                 "{msg} [{bar:40}] {pos}/{len} runs, {elapsed} elapsed, ~{eta} left",
@@ -504,29 +546,87 @@ pub fn run_campaign(
         bar
     });
     // Bounded chunks keep memory flat however many runs there are.
-    let chunk = (rayon::current_num_threads() * 8).max(16) as u64;
-    let mut start = range.start;
-    while start < range.end {
-        let end = (start + chunk).min(range.end);
-        let results: Vec<Result<RunResult>> = (start..end)
-            .into_par_iter()
-            .map(|i| {
-                let r = one_run(plant, specs, campaign, i, with_pcrlb);
-                if let Some(bar) = &progress {
-                    bar.inc(1);
+    let threads = rayon::current_num_threads() as u64;
+    let per_run = campaign
+        .steps
+        .saturating_mul(24 * specs.len() as u64 + 200)
+        .max(1);
+    let chunk = (IN_FLIGHT_BYTES / per_run).clamp(threads.max(1), (threads * 8).max(16));
+    for range in ranges {
+        let mut start = range.start;
+        while start < range.end {
+            let end = start.saturating_add(chunk).min(range.end);
+            let results: Vec<Result<RunResult>> = (start..end)
+                .into_par_iter()
+                .map(|i| {
+                    let r = one_run(plant, specs, &campaign, i, with_pcrlb);
+                    if let Some(bar) = &progress {
+                        bar.inc(1);
+                    }
+                    r
+                })
+                .collect();
+            let mut failure: Option<Error> = None;
+            for (i, r) in (start..end).zip(results) {
+                match r {
+                    Ok(runs) => add_run(totals, i, runs),
+                    Err(e) => {
+                        let interrupt = matches!(e, Error::Interrupted(_));
+                        if failure.is_none()
+                            || (interrupt && !matches!(failure, Some(Error::Interrupted(_))))
+                        {
+                            failure = Some(e);
+                        }
+                    }
                 }
-                r
-            })
-            .collect();
-        for (i, r) in (start..end).zip(results) {
-            add_run(&mut totals, i, r?);
+            }
+            if let Some(e) = failure {
+                if let Some(bar) = &progress {
+                    bar.abandon();
+                }
+                return Err(e);
+            }
+            after_chunk(totals)?;
+            start = end;
         }
-        start = end;
     }
     if let Some(bar) = progress {
         bar.finish_and_clear();
     }
-    Ok(totals)
+    Ok(())
+}
+
+/// Sorts disjoint run ranges and joins adjacent ones.
+fn join_ranges(covered: &mut Vec<[u64; 2]>) {
+    covered.sort();
+    let mut joined: Vec<[u64; 2]> = Vec::with_capacity(covered.len());
+    for r in covered.drain(..) {
+        match joined.last_mut() {
+            Some(last) if last[1] == r[0] => last[1] = r[1],
+            _ => joined.push(r),
+        }
+    }
+    *covered = joined;
+}
+
+/// The runs of `range` that `totals` does not cover yet, as ranges (what a resumed campaign has
+/// left to do).
+pub fn uncovered(totals: &Totals, range: Range<u64>) -> Vec<Range<u64>> {
+    let mut left = Vec::new();
+    let mut next = range.start;
+    for &[a, b] in &totals.covered {
+        if b <= next || a >= range.end {
+            continue;
+        }
+        if a > next {
+            left.push(next..a);
+        }
+        next = next.max(b);
+    }
+    if next < range.end {
+        left.push(next..range.end);
+    }
+    left
 }
 
 /// Adds shard totals into the totals of the whole campaign. The shards must come from the same
@@ -571,15 +671,7 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
             a.merge(b)?;
         }
         total.covered.extend(part.covered.iter().copied());
-        total.covered.sort();
-        let mut joined: Vec<[u64; 2]> = Vec::new();
-        for r in total.covered.drain(..) {
-            match joined.last_mut() {
-                Some(last) if last[1] == r[0] => last[1] = r[1],
-                _ => joined.push(r),
-            }
-        }
-        total.covered = joined;
+        join_ranges(&mut total.covered);
     }
     Ok(total)
 }
@@ -752,15 +844,39 @@ pub fn summarise(totals: &Totals) -> Summary {
         verdict,
         runs: Some(runs),
         pcrlb_rmse_all: Some(bound.as_ref().map(|b| b.rmse_all)),
-        pcrlb_rmse: Some(
-            bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect())),
-        ),
+        pcrlb_rmse: Some(bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect()))),
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn runs_left_to_do_are_the_gaps_in_the_covered_ranges() {
+        let mut covered = vec![[5, 6], [0, 2], [2, 3], [8, 10]];
+        join_ranges(&mut covered);
+        assert_eq!(covered, vec![[0, 3], [5, 6], [8, 10]]);
+        let totals = Totals {
+            format: PARTIAL_FORMAT.into(),
+            campaign: CampaignSpec {
+                model: "m".into(),
+                set: Vec::new(),
+                runs: 12,
+                steps: 1,
+                seed: 0,
+                filters: Vec::new(),
+            },
+            states: Vec::new(),
+            measurements: 0,
+            covered,
+            filters: Vec::new(),
+            pcrlb: None,
+        };
+        assert_eq!(uncovered(&totals, 0..12), vec![3..5, 6..8, 10..12]);
+        assert_eq!(uncovered(&totals, 2..9), vec![3..5, 6..8]);
+        assert_eq!(uncovered(&totals, 0..3), Vec::<Range<u64>>::new());
+    }
 
     #[test]
     fn shards_partition_the_runs() {

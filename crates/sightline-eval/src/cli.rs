@@ -250,8 +250,10 @@ where
 }
 
 /// Runs the process's command line on `plants`, prints any error and returns the exit code
-/// (0 success, 1 a run failed, 2 bad input or usage).
+/// (0 success, 1 a run failed, 2 bad input or usage, 130 interrupted by Ctrl-C). Installs the
+/// Ctrl-C handler ([`crate::interrupt`]).
 pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
+    crate::interrupt::install();
     match run(std::env::args_os(), &plants) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {

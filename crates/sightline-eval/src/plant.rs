@@ -11,10 +11,10 @@ use sightline_core::{Alloc, Gaussian, Model, ParamError, Parameter, Variable};
 use sightline_filters::{Filter, FilterSpec, SpecError};
 use sightline_models::ModelVisitor;
 
-use crate::dataset::Dataset;
+use crate::dataset::{Dataset, Layout, Record};
 use crate::error::Result;
 use crate::pcrlb::{Bound, information_terms, pcrlb};
-use crate::simulate::{SimOptions, simulate};
+use crate::simulate::{SimOptions, simulate, simulate_each};
 
 /// A plant as the commands see it, whatever its concrete model type.
 pub trait AnyPlant: Send + Sync {
@@ -45,6 +45,15 @@ pub trait AnyPlant: Send + Sync {
     fn build_filter(&self, spec: &FilterSpec, seed: u64) -> Result<Box<dyn Filter>, SpecError>;
     /// Simulates a dataset with truth.
     fn simulate(&self, steps: usize, seed: u64, options: &SimOptions) -> Result<Dataset>;
+    /// Simulates like [`AnyPlant::simulate`], handing each row to `sink` as it is drawn
+    /// (constant memory, for long files); returns the layout of the rows.
+    fn simulate_each(
+        &self,
+        steps: usize,
+        seed: u64,
+        options: &SimOptions,
+        sink: &mut dyn FnMut(&Record) -> Result<()>,
+    ) -> Result<Layout>;
     /// A boxed copy (each Monte Carlo worker owns one).
     fn clone_box(&self) -> Box<dyn AnyPlant>;
     /// The posterior Cramér–Rao bound along the given true trajectories (see [`crate::pcrlb`]).
@@ -250,6 +259,25 @@ where
             seed,
             options,
         )
+    }
+
+    fn simulate_each(
+        &self,
+        steps: usize,
+        seed: u64,
+        options: &SimOptions,
+        sink: &mut dyn FnMut(&Record) -> Result<()>,
+    ) -> Result<Layout> {
+        simulate_each(
+            &self.model,
+            &self.prior_gaussian(),
+            &self.input_vector(),
+            steps,
+            seed,
+            options,
+            sink,
+        )?;
+        Ok(crate::simulate::layout(&self.model))
     }
 
     fn clone_box(&self) -> Box<dyn AnyPlant> {

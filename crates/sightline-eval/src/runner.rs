@@ -11,7 +11,8 @@
 //! each filter's posterior is handed to an [`Observer`] (which may write `estimates.csv` as it
 //! goes), metrics are accumulated online and the plot series is decimated to a bounded size, so
 //! memory does not grow with the length of the file. A filter that fails is marked failed with
-//! its error (which names the step) and the others go on.
+//! its error (which names the step) and the others go on. A Ctrl-C stops the run before the
+//! next row with [`Error::Interrupted`] ([`crate::interrupt`]).
 //!
 //! **Smoothing** ([`RunConfig::smooth`]) is the exception to bounded memory: every filter is asked
 //! to record its forward pass ([`Filter::record_for_smoothing`]), the run keeps the times and the
@@ -508,6 +509,16 @@ pub fn run(
     // Smoothing only: the time and truth of every row.
     let (mut times, mut truths) = (Vec::new(), Vec::new());
     while source.next_into(&mut record)? {
+        crate::interrupt::check(|| format!("at row {k}"))?;
+        if let Some(x) = &record.x {
+            if x.len() != n {
+                return Err(Error::Usage(format!(
+                    "row {k}: the truth has {} values but model '{}' has {n} states",
+                    x.len(),
+                    plant.name()
+                )));
+            }
+        }
         if config.smooth {
             times.push(record.t);
             if let Some(x) = &record.x {

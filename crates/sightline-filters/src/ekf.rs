@@ -5,11 +5,11 @@
 //! 2006, §13.2). Jacobians come from num-dual in one forward pass with vector duals, or from
 //! the model's hand-written Jacobian when it supplies one (`jacobian=model`, the default).
 
-use nalgebra::DefaultAllocator;
+use nalgebra::{DefaultAllocator, Dim};
 use sightline_core::ad::Differentiable;
 use sightline_core::{Alloc, Gaussian, Model};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
@@ -20,11 +20,16 @@ use crate::spec::{FilterSpec, OptionInfo, SpecError};
 pub const INFO: KindInfo = KindInfo {
     kind: "ekf",
     about: "extended Kalman filter, exact Jacobians by automatic differentiation",
-    options: &[OptionInfo {
-        key: "jacobian",
-        default: "model",
-        about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
-    }],
+    options: &[
+        OptionInfo {
+            key: "jacobian",
+            default: "model",
+            about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
+        },
+        REPAIR,
+        FLOOR,
+        GATE,
+    ],
     linear_only: false,
 };
 
@@ -99,9 +104,9 @@ where
         "ad" => JacobianSource::Automatic,
         _ => JacobianSource::Model,
     };
-    Ok(Box::new(
-        Ekf::new(model.clone(), prior.clone(), &spec.label).with_jacobians(source),
-    ))
+    let mut ekf = Ekf::new(model.clone(), prior.clone(), &spec.label).with_jacobians(source);
+    ekf.belief.remedies = Remedies::from_options(&opts, model.meas_dim().value())?;
+    Ok(Box::new(ekf))
 }
 
 impl<M: Model> Filter for Ekf<M>

@@ -24,13 +24,13 @@
 //! step control, so on strongly nonlinear measurements the iterates may oscillate; the count
 //! bound keeps the cost fixed.
 
-use nalgebra::DefaultAllocator;
+use nalgebra::{DefaultAllocator, Dim};
 use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, ensure_finite};
 use sightline_core::{Alloc, Gaussian, Model};
 
-use crate::belief::{Belief, belief_accessors};
-use crate::filter::{Diagnostics, Filter, FilterError};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
+use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
 use crate::smoother::SmootherKind;
@@ -57,6 +57,9 @@ pub const INFO: KindInfo = KindInfo {
             default: "model",
             about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
         },
+        REPAIR,
+        FLOOR,
+        GATE,
     ],
     linear_only: false,
 };
@@ -71,7 +74,6 @@ where
     source: JacobianSource,
     max_iterations: usize,
     tolerance: f64,
-    iterations: u64,
 }
 
 impl<M: Model> Iekf<M>
@@ -93,7 +95,6 @@ where
             source: JacobianSource::Model,
             max_iterations: max_iterations.max(1),
             tolerance,
-            iterations: 0,
         }
     }
 
@@ -122,10 +123,10 @@ where
         "ad" => JacobianSource::Automatic,
         _ => JacobianSource::Model,
     };
-    Ok(Box::new(
-        Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol)
-            .with_jacobians(source),
-    ))
+    let mut iekf = Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol)
+        .with_jacobians(source);
+    iekf.belief.remedies = Remedies::from_options(&opts, model.meas_dim().value())?;
+    Ok(Box::new(iekf))
 }
 
 impl<M: Model> Filter for Iekf<M>
@@ -205,14 +206,7 @@ where
             }
             point = next;
         };
-        self.iterations += done as u64;
+        b.diagnostics.iterations += done as u64;
         b.linear_update(&y, present, &predicted, h, &r, None)
-    }
-
-    fn diagnostics(&self) -> Diagnostics {
-        Diagnostics {
-            iterations: self.iterations,
-            ..Diagnostics::default()
-        }
     }
 }

@@ -16,7 +16,7 @@ use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
@@ -27,11 +27,16 @@ use crate::spec::{FilterSpec, OptionInfo, SpecError};
 pub const INFO: KindInfo = KindInfo {
     kind: "kf",
     about: "linear Kalman filter (Joseph form); linear plants only",
-    options: &[OptionInfo {
-        key: "gain",
-        default: "optimal",
-        about: "optimal | steady (DARE gain at the nominal dt) | k1/k2/... fixed n×m gain, row-major",
-    }],
+    options: &[
+        OptionInfo {
+            key: "gain",
+            default: "optimal",
+            about: "optimal | steady (DARE gain at the nominal dt) | k1/k2/... fixed n×m gain, row-major",
+        },
+        REPAIR,
+        FLOOR,
+        GATE,
+    ],
     linear_only: true,
 };
 
@@ -167,9 +172,9 @@ where
             }
         }
     };
-    Ok(Box::new(
-        Kf::new(model.clone(), prior.clone(), &spec.label).with_gain(gain),
-    ))
+    let mut kf = Kf::new(model.clone(), prior.clone(), &spec.label).with_gain(gain);
+    kf.belief.remedies = Remedies::from_options(&opts, m)?;
+    Ok(Box::new(kf))
 }
 
 impl<M: Model> Filter for Kf<M>

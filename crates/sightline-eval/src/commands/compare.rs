@@ -430,7 +430,14 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         &options,
         &args.output,
         &title,
-    )?;
+    )
+    .map_err(|e| match e {
+        Error::Interrupted(m) => Error::Interrupted(format!(
+            "{m}; nothing was written to {}",
+            args.output.display()
+        )),
+        other => other,
+    })?;
     print_result(&comparison.summary, &dir, &comparison.notes);
     match failures_error(&comparison.summary) {
         Some(e) => Err(e),
