@@ -479,7 +479,7 @@ mod tests {
         // diag(4, 1, −2, 0) rotated: the repaired spectrum is (4, 1, 4·10⁻⁶, 4·10⁻⁶) in the same
         // eigenbasis.
         let q = {
-            let mut a = sample();
+            let a = sample();
             let g: Matrix4<f64> = &a * a.transpose();
             let mut v = g;
             let mut d = g;
