@@ -322,8 +322,9 @@ where
     }
 }
 
-/// Covariance repair: symmetrises `p` and raises every eigenvalue below `floor · λ_max` (and
-/// below the smallest positive normal number) to that level, keeping the eigenvectors — the
+/// Covariance repair: symmetrises `p` and raises every eigenvalue below `floor · ρ(P)` (ρ the
+/// spectral radius, i.e. λ_max for a semi-definite P; and at least the smallest positive normal
+/// number) to that level, keeping the eigenvectors — the
 /// nearest matrix in the Frobenius norm with that spectral floor (Higham, "Computing a nearest
 /// symmetric positive semidefinite matrix", Linear Algebra Appl. 103, 1988, Thm. 2.1, applied
 /// with a floor). Returns whether `p` was changed beyond symmetrisation; a matrix that already
@@ -363,11 +364,13 @@ where
     let mut v = p.clone();
     jacobi_eigen(&mut a, &mut v);
     let n = p.nrows();
-    let largest = (0..n).map(|i| a[(i, i)]).fold(f64::NEG_INFINITY, f64::max);
-    let threshold = (floor * largest).max(f64::MIN_POSITIVE);
+    // The spectral radius: λmax for a semi-definite matrix, and still a scale when round-off
+    // or a poor model made every eigenvalue negative.
+    let radius = (0..n).map(|i| a[(i, i)].abs()).fold(0.0, f64::max);
+    let threshold = (floor * radius).max(f64::MIN_POSITIVE);
     // Eigenvalues computed within rounding of the floor already meet it (so a repaired matrix
     // is not repaired again on the next step).
-    let slack = 8.0 * n as f64 * f64::EPSILON * largest.abs();
+    let slack = 8.0 * n as f64 * f64::EPSILON * radius;
     if (0..n).all(|i| a[(i, i)] >= threshold - slack) {
         return false;
     }
@@ -498,7 +501,7 @@ mod tests {
         // diag(4, 1, −2, 0) rotated: the repaired spectrum is (4, 1, 4·10⁻⁶, 4·10⁻⁶) in the same
         // eigenbasis.
         let q = {
-            let mut a = sample();
+            let a = sample();
             let g: Matrix4<f64> = &a * a.transpose();
             let mut v = g;
             let mut d = g;

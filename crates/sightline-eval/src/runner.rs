@@ -584,9 +584,23 @@ pub fn run(
                 }
                 let Some(nees) = normalised_squared(cov, &lane.error, &mut lane.work, &mut lane.z)
                 else {
+                    // Either P is not positive definite, or it is and the error is so large
+                    // that eᵀP⁻¹e overflows (e.g. after an absurd measurement).
+                    let zero = vec![0.0; n];
+                    let definite =
+                        normalised_squared(cov, &zero, &mut lane.work, &mut lane.z).is_some();
+                    let reason = if definite {
+                        let far = lane.error.iter().fold(0.0_f64, |a, e| a.max(e.abs()));
+                        format!(
+                            "its NEES is not finite: the estimate is {far:e} away from the truth"
+                        )
+                    } else {
+                        "the posterior covariance is not positive definite, so its NEES is \
+                         undefined"
+                            .to_string()
+                    };
                     let message = format!(
-                        "filter '{label}' failed at step {k} (t = {}): the posterior covariance \
-                         is not positive definite, so its NEES is undefined",
+                        "filter '{label}' failed at step {k} (t = {}): {reason}",
                         record.t
                     );
                     lane.fail(k, message);

@@ -39,7 +39,8 @@ pub(crate) const GATE: OptionInfo = OptionInfo {
 ///
 /// - **Covariance repair** (`repair=on`, `floor=1e-12`): after each predict and update the
 ///   state covariance — and, before it is factorised, the innovation covariance — is
-///   symmetrised and its eigenvalues below `floor · λmax` are raised to that level
+///   symmetrised and its eigenvalues below `floor · ρ` (ρ the spectral radius, λmax for a
+///   semi-definite matrix) are raised to that level
 ///   ([`floor_eigenvalues`]). A matrix that meets the floor is left untouched, so on a healthy
 ///   filter repair changes nothing; each change counts in [`Diagnostics::repaired`]. It turns a
 ///   covariance that round-off or a poor model pushed indefinite into the nearest usable one,
