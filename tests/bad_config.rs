@@ -247,6 +247,27 @@ fn each_bad_setting_is_named_with_its_valid_choices() {
             vec!["compare", "cv", "no-such-file.csv", "-o", o],
             vec!["cannot read no-such-file.csv"],
         ),
+        (
+            vec![
+                "compare",
+                "tankchain",
+                d,
+                "--set",
+                "n=64",
+                "-f",
+                "pf:particles=100000000",
+                "-o",
+                o,
+            ],
+            vec![
+                "'particles' = '100000000'",
+                "at most 3125000 for a plant with 64 states",
+            ],
+        ),
+        (
+            vec!["simulate", "cv", "--steps", "0", "--seed", "1", "-o", o],
+            vec!["--steps must be at least 1"],
+        ),
         (vec!["frobnicate"], vec!["frobnicate"]),
     ];
     for (args, needles) in cases {
@@ -262,4 +283,79 @@ fn each_bad_setting_is_named_with_its_valid_choices() {
         }
         assert!(!out.exists(), "{args:?} wrote an output");
     }
+}
+
+#[test]
+fn an_output_path_that_is_not_ours_is_refused_never_replaced() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("cv.csv");
+    expect(
+        &[
+            "simulate",
+            "cv",
+            "--steps",
+            "20",
+            "--seed",
+            "1",
+            "-o",
+            s(&data),
+        ],
+        0,
+    );
+    // A file given as the output directory stays as it was.
+    let file = dir.path().join("notes.txt");
+    std::fs::write(&file, "keep me").unwrap();
+    let result = sightline(&["compare", "cv", s(&data), "-o", s(&file)]);
+    let stderr = String::from_utf8_lossy(&result.stderr);
+    assert_eq!(result.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("exists and is not a directory"), "{stderr}");
+    assert_eq!(std::fs::read_to_string(&file).unwrap(), "keep me");
+    // So does a directory of other things.
+    let other = dir.path().join("photos");
+    std::fs::create_dir(&other).unwrap();
+    std::fs::write(other.join("cat.jpg"), "meow").unwrap();
+    let result = sightline(&[
+        "montecarlo",
+        "cv",
+        "--runs",
+        "2",
+        "--steps",
+        "5",
+        "-o",
+        s(&other),
+    ]);
+    let stderr = String::from_utf8_lossy(&result.stderr);
+    assert_eq!(result.status.code(), Some(2), "{stderr}");
+    assert!(
+        stderr.contains("does not hold a Sightline output"),
+        "{stderr}"
+    );
+    assert_eq!(
+        std::fs::read_to_string(other.join("cat.jpg")).unwrap(),
+        "meow"
+    );
+    // A dataset path that is a directory.
+    let result = sightline(&[
+        "simulate",
+        "cv",
+        "--steps",
+        "5",
+        "--seed",
+        "1",
+        "-o",
+        s(&other),
+    ]);
+    assert_eq!(result.status.code(), Some(2));
+    // An earlier output is replaced, and nothing else is left beside it.
+    let out = dir.path().join("out");
+    expect(&["compare", "cv", s(&data), "-f", "kf", "-o", s(&out)], 0);
+    expect(&["compare", "cv", s(&data), "-f", "ukf", "-o", s(&out)], 0);
+    let summary = common_cli::json(&out.join("summary.json"));
+    assert_eq!(summary["filters"][0]["label"], "ukf");
+    let mut names: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(names, ["cv.csv", "notes.txt", "out", "photos"]);
 }

@@ -403,3 +403,31 @@ where
 {
     OMatrix::<f64, N, Dyn>::zeros_generic(n, Dyn(count))
 }
+
+/// Most values (samples × states) one sample buffer may hold: 2·10⁸ doubles, 1.6 GB. A particle
+/// filter keeps two to four such buffers, so larger clouds would exhaust the memory of most
+/// machines and abort the process instead of failing with a message.
+pub const MAX_CLOUD_VALUES: usize = 200_000_000;
+
+/// Checks that `count` samples of `n` states fit [`MAX_CLOUD_VALUES`]; the error names the
+/// option (`key`) and the largest count that fits.
+pub(crate) fn check_cloud_size(
+    label: &str,
+    key: &str,
+    count: usize,
+    n: usize,
+) -> Result<(), crate::spec::SpecError> {
+    if count.saturating_mul(n.max(1)) <= MAX_CLOUD_VALUES {
+        return Ok(());
+    }
+    Err(crate::spec::SpecError::BadValue {
+        spec: label.to_string(),
+        key: key.to_string(),
+        value: count.to_string(),
+        expected: format!(
+            "at most {} for a plant with {n} states (a sample buffer holds {key} × states \
+             values, at most {MAX_CLOUD_VALUES})",
+            MAX_CLOUD_VALUES / n.max(1)
+        ),
+    })
+}

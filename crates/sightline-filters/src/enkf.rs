@@ -150,6 +150,7 @@ where
         if count < 2 {
             return Err(bad("members", count.to_string(), "at least 2"));
         }
+        cloud::check_cloud_size(label, "members", count, n)?;
         if !(config.inflation.is_finite() && config.inflation >= 1.0) {
             return Err(bad(
                 "inflation",

@@ -311,6 +311,7 @@ where
         if count < 2 {
             return Err(bad("particles", count.to_string(), "at least 2"));
         }
+        cloud::check_cloud_size(label, "particles", count, n)?;
         if !(0.0..=1.0).contains(&config.ess) {
             return Err(bad(
                 "ess",

@@ -24,6 +24,11 @@ pub fn run(
     output: &Path,
 ) -> Result<()> {
     let plant = configure(plants, args)?;
+    if steps == 0 {
+        return Err(Error::Usage(
+            "--steps must be at least 1 (a dataset needs at least one row)".into(),
+        ));
+    }
     let options = SimOptions {
         noise_free,
         every,
