@@ -844,7 +844,9 @@ pub fn summarise(totals: &Totals) -> Summary {
         verdict,
         runs: Some(runs),
         pcrlb_rmse_all: Some(bound.as_ref().map(|b| b.rmse_all)),
-        pcrlb_rmse: Some(bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect()))),
+        pcrlb_rmse: Some(
+            bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect())),
+        ),
     }
 }
 
