@@ -371,7 +371,11 @@ fn one_run(
     let steps = campaign.steps as usize;
     let data = plant
         .simulate(steps, seed, &SimOptions::default())
-        .map_err(|e| Error::Run(format!("run {i} (seed {seed}): {e}")))?;
+        .map_err(|e| match e {
+            // A Ctrl-C seen while simulating stays an interrupt (exit 130), not a failed run.
+            Error::Interrupted(_) => e,
+            other => Error::Run(format!("run {i} (seed {seed}): {other}")),
+        })?;
     let terms = with_pcrlb.then(|| plant.pcrlb_terms(&data));
     let filters = runner::build_filters(plant, specs, seed)?;
     let mut per_step = PerStep {
