@@ -128,3 +128,70 @@ fn tune_recovers_generating_noise_on_cv() {
         "tuned point is not the maximum"
     );
 }
+
+/// `sightline tune` writes `DIR/tuned.json` with the contract's keys (../shared/design.md §4:
+/// params, log_likelihood, start, std_errors) and the optimiser's trace; a bad `--param` is a
+/// usage error (exit code 2) naming the valid parameters.
+#[test]
+fn tune_command_writes_the_contract_file() {
+    let bin = env!("CARGO_BIN_EXE_sightline");
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("cv.csv");
+    let out = dir.path().join("tuned");
+    let run = |args: &[&str]| std::process::Command::new(bin).args(args).output().unwrap();
+    let s = run(&[
+        "simulate",
+        "cv",
+        "--steps",
+        "1500",
+        "--seed",
+        "8",
+        "-o",
+        data.to_str().unwrap(),
+    ]);
+    assert!(s.status.success());
+    let s = run(&[
+        "tune",
+        "cv",
+        data.to_str().unwrap(),
+        "-f",
+        "kf",
+        "--param",
+        "q",
+        "--param",
+        "r",
+        "--set",
+        "q=2",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(s.status.success(), "{}", String::from_utf8_lossy(&s.stderr));
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("tuned.json")).unwrap()).unwrap();
+    for key in ["params", "log_likelihood", "start", "std_errors", "trace"] {
+        assert!(json.get(key).is_some(), "tuned.json lacks '{key}'");
+    }
+    assert_eq!(json["start"]["q"], 2.0);
+    let q = json["params"]["q"].as_f64().unwrap();
+    assert!(
+        q > 0.0 && q < 2.0,
+        "q = {q}: the likelihood pulls it towards the generating 0.5"
+    );
+    assert!(
+        json["log_likelihood"].as_f64().unwrap() > json["start_log_likelihood"].as_f64().unwrap()
+    );
+    let bad = run(&[
+        "tune",
+        "cv",
+        data.to_str().unwrap(),
+        "-f",
+        "kf",
+        "--param",
+        "qq",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(bad.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&bad.stderr);
+    assert!(err.contains("qq") && err.contains("sd0.pos"), "{err}");
+}

@@ -42,3 +42,38 @@ pub fn step(
     }
     filter.update(y, u, t)
 }
+
+/// Filtered means (one per row) of `filter` over `records` with recording for smoothing on,
+/// and the smoothed track (`None` if the filter does not smooth).
+pub fn run_and_smooth(
+    filter: &mut dyn Filter,
+    records: &[sightline::eval::dataset::Record],
+) -> (Vec<Vec<f64>>, Option<sightline::filters::SmoothedTrack>) {
+    let smooths = filter.record_for_smoothing();
+    let mut filtered = Vec::with_capacity(records.len());
+    for (k, r) in records.iter().enumerate() {
+        let previous = (k > 0).then(|| (records[k - 1].t, records[k - 1].u.as_slice()));
+        step(filter, previous, r.t, &r.y, &r.u).unwrap();
+        filtered.push(filter.mean().to_vec());
+    }
+    let track = filter.smooth().map(|s| s.unwrap());
+    assert_eq!(
+        track.is_some(),
+        smooths,
+        "{}: smooth() vs record_for_smoothing()",
+        filter.label()
+    );
+    (filtered, track)
+}
+
+/// Sum over rows and state components of the squared error of `estimates` against the truth.
+pub fn squared_error(estimates: &[Vec<f64>], records: &[sightline::eval::dataset::Record]) -> f64 {
+    estimates
+        .iter()
+        .zip(records)
+        .map(|(m, r)| {
+            let x = r.x.as_ref().expect("dataset with truth");
+            m.iter().zip(x).map(|(a, b)| (a - b).powi(2)).sum::<f64>()
+        })
+        .sum()
+}

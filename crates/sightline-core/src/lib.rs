@@ -10,6 +10,7 @@
 //! ([`SigmaRule`]), seeded random streams ([`rng`]) and the error types.
 
 pub mod ad;
+pub mod chi2;
 pub mod error;
 pub mod gaussian;
 pub mod integrate;

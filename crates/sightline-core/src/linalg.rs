@@ -257,6 +257,137 @@ where
     l
 }
 
+/// Eigen-decomposition `A = V diag(λ) Vᵀ` of a symmetric matrix by the cyclic Jacobi method
+/// (Golub & Van Loan, *Matrix Computations*, 4th ed., 2013, §8.5.2–8.5.3, Alg. 8.5.1 for the
+/// 2×2 symmetric Schur rotation and Alg. 8.5.3 for the cyclic sweep): `a` is overwritten by
+/// (nearly) diag(λ) and `v` by the orthogonal V. Sweeps stop once the off-diagonal mass is below
+/// `ε·‖A‖_F` (quadratic convergence; a few sweeps for the sizes of state covariances) or after
+/// 60 sweeps. Works for every dimension type, static or `Dyn`, without allocating for static
+/// sizes — which nalgebra's own symmetric eigensolver cannot offer over a generic `Dim`.
+pub fn jacobi_eigen<N: Dim>(a: &mut OMatrix<f64, N, N>, v: &mut OMatrix<f64, N, N>)
+where
+    DefaultAllocator: Allocator<N, N>,
+{
+    let n = a.nrows();
+    v.fill_with_identity();
+    let scale = a.norm();
+    if !(scale.is_finite() && scale > 0.0) {
+        return;
+    }
+    for _sweep in 0..60 {
+        let mut off = 0.0;
+        for j in 0..n {
+            for i in 0..n {
+                if i != j {
+                    off += a[(i, j)] * a[(i, j)];
+                }
+            }
+        }
+        if off.sqrt() <= f64::EPSILON * scale {
+            return;
+        }
+        for p in 0..n {
+            for q in (p + 1)..n {
+                let apq = a[(p, q)];
+                if apq == 0.0 {
+                    continue;
+                }
+                // sym.schur2: the rotation (c, s) that zeroes a_pq.
+                let tau = (a[(q, q)] - a[(p, p)]) / (2.0 * apq);
+                let t = if tau >= 0.0 {
+                    1.0 / (tau + (1.0 + tau * tau).sqrt())
+                } else {
+                    -1.0 / (-tau + (1.0 + tau * tau).sqrt())
+                };
+                let c = 1.0 / (1.0 + t * t).sqrt();
+                let s = t * c;
+                // A ← Jᵀ A J, column pair then row pair; V ← V J.
+                for k in 0..n {
+                    let (akp, akq) = (a[(k, p)], a[(k, q)]);
+                    a[(k, p)] = c * akp - s * akq;
+                    a[(k, q)] = s * akp + c * akq;
+                }
+                for k in 0..n {
+                    let (apk, aqk) = (a[(p, k)], a[(q, k)]);
+                    a[(p, k)] = c * apk - s * aqk;
+                    a[(q, k)] = s * apk + c * aqk;
+                }
+                for k in 0..n {
+                    let (vkp, vkq) = (v[(k, p)], v[(k, q)]);
+                    v[(k, p)] = c * vkp - s * vkq;
+                    v[(k, q)] = s * vkp + c * vkq;
+                }
+            }
+        }
+    }
+}
+
+/// Covariance repair: symmetrises `p` and raises every eigenvalue below `floor · ρ(P)` (ρ the
+/// spectral radius, i.e. λ_max for a semi-definite P; and at least the smallest positive normal
+/// number) to that level, keeping the eigenvectors — the
+/// nearest matrix in the Frobenius norm with that spectral floor (Higham, "Computing a nearest
+/// symmetric positive semidefinite matrix", Linear Algebra Appl. 103, 1988, Thm. 2.1, applied
+/// with a floor). Returns whether `p` was changed beyond symmetrisation; a matrix that already
+/// satisfies the floor is left bit for bit as it was (after symmetrisation), so repair costs
+/// nothing in accuracy on a healthy filter. Non-finite matrices are left alone (the caller
+/// reports them). A Cholesky test of `P − floor·tr(P)·I` skips the eigen-decomposition in the
+/// common healthy case (tr P ≥ λ_max, so success proves the floor holds).
+///
+/// ```
+/// use sightline_core::linalg::floor_eigenvalues;
+/// use sightline_core::nalgebra::Matrix2;
+/// // Eigenvalues 3 and −1, eigenvectors (1, 1)/√2 and (1, −1)/√2: the −1 becomes 3·10⁻³.
+/// let mut p = Matrix2::new(1.0, 2.0, 2.0, 1.0);
+/// assert!(floor_eigenvalues(&mut p, 1e-3));
+/// assert!((p - Matrix2::new(1.5015, 1.4985, 1.4985, 1.5015)).abs().max() < 1e-12);
+/// let mut healthy = Matrix2::new(2.0, 0.5, 0.5, 1.0);
+/// assert!(!floor_eigenvalues(&mut healthy, 1e-3));
+/// assert_eq!(healthy, Matrix2::new(2.0, 0.5, 0.5, 1.0));
+/// ```
+pub fn floor_eigenvalues<N: Dim>(p: &mut OMatrix<f64, N, N>, floor: f64) -> bool
+where
+    DefaultAllocator: Allocator<N, N>,
+{
+    symmetrise(p);
+    if !p.iter().all(|v| v.is_finite()) {
+        return false;
+    }
+    let trace = p.trace();
+    if trace > 0.0 {
+        let (dim, _) = p.shape_generic();
+        let shifted = &*p - OMatrix::<f64, N, N>::identity_generic(dim, dim) * (floor * trace);
+        if Cholesky::new(shifted).is_some() {
+            return false;
+        }
+    }
+    let mut a = p.clone();
+    let mut v = p.clone();
+    jacobi_eigen(&mut a, &mut v);
+    let n = p.nrows();
+    // The spectral radius: λmax for a semi-definite matrix, and still a scale when round-off
+    // or a poor model made every eigenvalue negative.
+    let radius = (0..n).map(|i| a[(i, i)].abs()).fold(0.0, f64::max);
+    let threshold = (floor * radius).max(f64::MIN_POSITIVE);
+    // Eigenvalues computed within rounding of the floor already meet it (so a repaired matrix
+    // is not repaired again on the next step).
+    let slack = 8.0 * n as f64 * f64::EPSILON * radius;
+    if (0..n).all(|i| a[(i, i)] >= threshold - slack) {
+        return false;
+    }
+    p.fill(0.0);
+    for k in 0..n {
+        let lambda = a[(k, k)].max(threshold);
+        for j in 0..n {
+            let vjk = v[(j, k)] * lambda;
+            for i in 0..n {
+                p[(i, j)] += v[(i, k)] * vjk;
+            }
+        }
+    }
+    symmetrise(p);
+    true
+}
+
 /// Smallest eigenvalue of a symmetric matrix (for soundness checks and covariance repair).
 pub fn min_eigenvalue<N>(p: &OMatrix<f64, N, N>) -> f64
 where
@@ -334,5 +465,67 @@ mod tests {
         let mut indefinite = Matrix4::<f64>::identity();
         indefinite[(3, 3)] = -1e-3;
         assert!(semidefinite_factor(&indefinite, "Q").is_err());
+    }
+    #[test]
+    fn jacobi_finds_the_eigenvalues_of_the_second_difference_matrix() {
+        // tridiag(−1, 2, −1) of size n has eigenvalues 2 − 2cos(kπ/(n+1)), k = 1..n (closed form
+        // for tridiagonal Toeplitz matrices).
+        let n = 6;
+        let mut a = nalgebra::DMatrix::<f64>::from_fn(n, n, |i, j| match i.abs_diff(j) {
+            0 => 2.0,
+            1 => -1.0,
+            _ => 0.0,
+        });
+        let original = a.clone();
+        let mut v = a.clone();
+        jacobi_eigen(&mut a, &mut v);
+        let mut got: Vec<f64> = (0..n).map(|i| a[(i, i)]).collect();
+        got.sort_by(f64::total_cmp);
+        for (k, g) in got.iter().enumerate() {
+            let exact = 2.0 - 2.0 * ((k + 1) as f64 * std::f64::consts::PI / (n + 1) as f64).cos();
+            assert!((g - exact).abs() < 1e-13, "λ{k}: {g} vs {exact}");
+        }
+        // V is orthogonal and V diag(λ) Vᵀ reproduces the matrix.
+        let diag = nalgebra::DMatrix::from_diagonal(&a.diagonal());
+        assert!(
+            (&v * v.transpose() - nalgebra::DMatrix::identity(n, n))
+                .abs()
+                .max()
+                < 1e-14
+        );
+        assert!((&v * diag * v.transpose() - original).abs().max() < 1e-13);
+    }
+
+    #[test]
+    fn eigenvalue_floor_repairs_only_what_breaks_the_floor() {
+        // diag(4, 1, −2, 0) rotated: the repaired spectrum is (4, 1, 4·10⁻⁶, 4·10⁻⁶) in the same
+        // eigenbasis.
+        let q = {
+            let a = sample();
+            let g: Matrix4<f64> = &a * a.transpose();
+            let mut v = g;
+            let mut d = g;
+            jacobi_eigen(&mut d, &mut v);
+            v
+        };
+        let spectrum = Vector4::new(4.0, 1.0, -2.0, 0.0);
+        let p = q * Matrix4::from_diagonal(&spectrum) * q.transpose();
+        let mut repaired = p;
+        assert!(floor_eigenvalues(&mut repaired, 1e-6));
+        let expected =
+            q * Matrix4::from_diagonal(&Vector4::new(4.0, 1.0, 4e-6, 4e-6)) * q.transpose();
+        assert!(
+            (repaired - expected).abs().max() < 1e-12,
+            "{repaired} vs {expected}"
+        );
+        assert!(Cholesky::new(repaired).is_some());
+        // A second pass has nothing left to do.
+        let again = repaired;
+        assert!(!floor_eigenvalues(&mut repaired, 1e-6));
+        assert_eq!(repaired, again);
+        // Non-finite input is left for the caller to report.
+        let mut bad = Matrix4::<f64>::identity();
+        bad[(0, 0)] = f64::NAN;
+        assert!(!floor_eigenvalues(&mut bad, 1e-6));
     }
 }

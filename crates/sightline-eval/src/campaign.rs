@@ -231,9 +231,78 @@ pub struct Totals {
     pub covered: Vec<[u64; 2]>,
     /// Per filter, in spec order.
     pub filters: Vec<FilterTotals>,
-    /// RMSE bound from the posterior Cramér–Rao bound, when computed for the plant (the PCRLB
-    /// recursion plugs in here; `None` until then).
-    pub pcrlb_rmse_all: Option<f64>,
+    /// Exact sums of the posterior Cramér–Rao bound's information terms over the runs
+    /// (`None` for plants with more than [`crate::pcrlb::MAX_STATES`] states).
+    pub pcrlb: Option<PcrlbTotals>,
+}
+
+/// The PCRLB's share of the totals: the information terms of every run, summed exactly so that
+/// the bound of a merged campaign is bit for bit the unsharded one. The recursion itself runs on
+/// the averages when the summary is made ([`crate::pcrlb::bound_from_terms`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PcrlbTotals {
+    /// Prior covariance, column-major.
+    pub prior_cov: Vec<f64>,
+    /// Per step, Σ over runs of the `[D11 | D12 | D22]` entries.
+    pub terms: Vec<Vec<ExactSum>>,
+    /// Runs summed.
+    pub runs: u64,
+    /// Why the bound could not be computed (the lowest-numbered run's error).
+    pub error: Option<RunError>,
+}
+
+impl PcrlbTotals {
+    fn add(&mut self, run: u64, terms: Result<Vec<Vec<f64>>>) {
+        match terms {
+            Ok(terms) => {
+                for (sums, row) in self.terms.iter_mut().zip(&terms) {
+                    for (a, v) in sums.iter_mut().zip(row) {
+                        a.add(*v);
+                    }
+                }
+                self.runs += 1;
+            }
+            Err(e) => self.note_error(RunError {
+                run,
+                error: e.to_string(),
+            }),
+        }
+    }
+
+    fn note_error(&mut self, e: RunError) {
+        if self.error.as_ref().is_none_or(|old| e.run < old.run) {
+            self.error = Some(e);
+        }
+    }
+
+    fn merge(&mut self, other: &PcrlbTotals) {
+        for (a, b) in self.terms.iter_mut().zip(&other.terms) {
+            for (x, y) in a.iter_mut().zip(b) {
+                x.merge(y);
+            }
+        }
+        self.runs += other.runs;
+        if let Some(e) = &other.error {
+            self.note_error(e.clone());
+        }
+    }
+
+    /// The bound over the runs summed, or why there is none.
+    pub fn bound(&self, states: usize) -> Result<crate::pcrlb::Bound> {
+        if let Some(e) = &self.error {
+            return Err(Error::Run(format!("run {}: {}", e.run, e.error)));
+        }
+        if self.runs == 0 {
+            return Err(Error::Run("no run finished".into()));
+        }
+        let scale = 1.0 / self.runs as f64;
+        let means: Vec<Vec<f64>> = self
+            .terms
+            .iter()
+            .map(|row| row.iter().map(|s| s.value() * scale).collect())
+            .collect();
+        crate::pcrlb::bound_from_terms(states, &self.prior_cov, &means)
+    }
 }
 
 impl Totals {
@@ -288,17 +357,22 @@ impl Observer for PerStep {
     }
 }
 
+/// One run's filter results and, when the campaign keeps the PCRLB, its information terms.
+type RunResult = (Vec<FilterRun>, Option<Result<Vec<Vec<f64>>>>);
+
 fn one_run(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     campaign: &CampaignSpec,
     i: u64,
-) -> Result<Vec<FilterRun>> {
+    with_pcrlb: bool,
+) -> Result<RunResult> {
     let seed = run_seed(campaign.seed, i);
     let steps = campaign.steps as usize;
     let data = plant
         .simulate(steps, seed, &SimOptions::default())
         .map_err(|e| Error::Run(format!("run {i} (seed {seed}): {e}")))?;
+    let terms = with_pcrlb.then(|| plant.pcrlb_terms(&data));
     let filters = runner::build_filters(plant, specs, seed)?;
     let mut per_step = PerStep {
         nees: vec![vec![f64::NAN; steps]; specs.len()],
@@ -316,7 +390,7 @@ fn one_run(
         &config,
         &mut per_step,
     )?;
-    Ok(outcome
+    let runs = outcome
         .filters
         .into_iter()
         .zip(per_step.nees)
@@ -335,10 +409,16 @@ fn one_run(
             steps: f.metrics.steps,
             diagnostics: f.diagnostics.into(),
         })
-        .collect())
+        .collect();
+    Ok((runs, terms))
 }
 
-fn add_run(totals: &mut Totals, i: u64, runs: Vec<FilterRun>) {
+fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
+    if let (Some(p), Some(terms)) = (totals.pcrlb.as_mut(), terms) {
+        p.add(i, terms);
+    }
+    totals.covered.push([i, i + 1]);
+    join_ranges(&mut totals.covered);
     for (t, r) in totals.filters.iter_mut().zip(runs) {
         t.seconds.add(r.seconds);
         t.timed_steps += r.steps;
@@ -369,6 +449,62 @@ fn add_run(totals: &mut Totals, i: u64, runs: Vec<FilterRun>) {
     }
 }
 
+/// Most rows per run of a campaign. A campaign keeps every filter's per-step NEES and NIS sums
+/// (for the averaged plots and bands) and holds each run's dataset while it runs, so its memory
+/// grows with `--steps`; longer runs belong to `simulate` + `compare`, which stream.
+pub const MAX_STEPS: u64 = 1_000_000;
+
+/// Memory budget of the runs in flight at once (their datasets and per-step statistics): the
+/// chunk of runs executed in parallel shrinks for long runs to stay within it. Chunking never
+/// changes a result (the totals are exact sums).
+const IN_FLIGHT_BYTES: u64 = 256 << 20;
+
+/// Checks a campaign and returns its empty totals (no run covered yet); every spec is built
+/// once so that a bad one is a usage error before any work starts.
+pub fn empty_totals(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    campaign: &CampaignSpec,
+) -> Result<Totals> {
+    if campaign.steps == 0 {
+        return Err(Error::Usage("--steps must be at least 1".into()));
+    }
+    if campaign.steps > MAX_STEPS {
+        return Err(Error::Usage(format!(
+            "--steps {}: a Monte Carlo run has at most {MAX_STEPS} rows (the campaign keeps \
+             per-step statistics of every filter); for longer runs simulate a file with \
+             `sightline simulate` and run `sightline compare` on it, which streams",
+            campaign.steps
+        )));
+    }
+    if campaign.runs == 0 {
+        return Err(Error::Usage("--runs must be at least 1".into()));
+    }
+    let probe = runner::build_filters(plant, specs, campaign.seed)?;
+    let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    let steps = campaign.steps as usize;
+    Ok(Totals {
+        format: PARTIAL_FORMAT.into(),
+        campaign: campaign.clone(),
+        states: states.clone(),
+        measurements: plant.measurements().len(),
+        covered: Vec::new(),
+        filters: probe
+            .iter()
+            .map(|f| FilterTotals::new(f.label(), f.kind(), states.len(), steps))
+            .collect(),
+        pcrlb: (states.len() <= crate::pcrlb::MAX_STATES).then(|| {
+            let n = states.len();
+            PcrlbTotals {
+                prior_cov: plant.prior().1,
+                terms: vec![vec![ExactSum::default(); 3 * n * n]; steps],
+                runs: 0,
+                error: None,
+            }
+        }),
+    })
+}
+
 /// Runs `range` of the campaign's runs of `plant` with `specs` and returns their totals. A
 /// progress bar is drawn on stderr when it is a terminal.
 pub fn run_campaign(
@@ -377,35 +513,28 @@ pub fn run_campaign(
     campaign: &CampaignSpec,
     range: Range<u64>,
 ) -> Result<Totals> {
-    if campaign.steps == 0 {
-        return Err(Error::Usage("--steps must be at least 1".into()));
-    }
-    if campaign.runs == 0 {
-        return Err(Error::Usage("--runs must be at least 1".into()));
-    }
-    // Build once here so a bad spec is a usage error before any work starts.
-    let probe = runner::build_filters(plant, specs, campaign.seed)?;
-    let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
-    let steps = campaign.steps as usize;
-    let mut totals = Totals {
-        format: PARTIAL_FORMAT.into(),
-        campaign: campaign.clone(),
-        states: states.clone(),
-        measurements: plant.measurements().len(),
-        covered: if range.is_empty() {
-            Vec::new()
-        } else {
-            vec![[range.start, range.end]]
-        },
-        filters: probe
-            .iter()
-            .map(|f| FilterTotals::new(f.label(), f.kind(), states.len(), steps))
-            .collect(),
-        pcrlb_rmse_all: None,
-    };
-    drop(probe);
+    let mut totals = empty_totals(plant, specs, campaign)?;
+    run_ranges(plant, specs, &[range], &mut totals, &mut |_| Ok(()))?;
+    Ok(totals)
+}
+
+/// Runs the given ranges of the campaign's runs into `totals` (from [`empty_totals`] or a
+/// checkpoint), in parallel chunks; `after_chunk` sees the totals after every chunk (e.g. to
+/// save a checkpoint). On an error — Ctrl-C included — the runs that finished are still added
+/// to `totals` (and marked covered) before the error is returned, so nothing finished is lost;
+/// an interrupt takes precedence over other errors.
+pub fn run_ranges(
+    plant: &dyn AnyPlant,
+    specs: &[FilterSpec],
+    ranges: &[Range<u64>],
+    totals: &mut Totals,
+    after_chunk: &mut dyn FnMut(&Totals) -> Result<()>,
+) -> Result<()> {
+    let campaign = totals.campaign.clone();
+    let with_pcrlb = totals.pcrlb.is_some();
+    let count: u64 = ranges.iter().map(|r| r.end.saturating_sub(r.start)).sum();
     let progress = std::io::stderr().is_terminal().then(|| {
-        let bar = indicatif::ProgressBar::new(range.end - range.start);
+        let bar = indicatif::ProgressBar::new(count);
         bar.set_style(
             indicatif::ProgressStyle::with_template(
                 "{msg} [{bar:40}] {pos}/{len} runs, {elapsed} elapsed, ~{eta} left",
@@ -417,29 +546,87 @@ pub fn run_campaign(
         bar
     });
     // Bounded chunks keep memory flat however many runs there are.
-    let chunk = (rayon::current_num_threads() * 8).max(16) as u64;
-    let mut start = range.start;
-    while start < range.end {
-        let end = (start + chunk).min(range.end);
-        let results: Vec<Result<Vec<FilterRun>>> = (start..end)
-            .into_par_iter()
-            .map(|i| {
-                let r = one_run(plant, specs, campaign, i);
-                if let Some(bar) = &progress {
-                    bar.inc(1);
+    let threads = rayon::current_num_threads() as u64;
+    let per_run = campaign
+        .steps
+        .saturating_mul(24 * specs.len() as u64 + 200)
+        .max(1);
+    let chunk = (IN_FLIGHT_BYTES / per_run).clamp(threads.max(1), (threads * 8).max(16));
+    for range in ranges {
+        let mut start = range.start;
+        while start < range.end {
+            let end = start.saturating_add(chunk).min(range.end);
+            let results: Vec<Result<RunResult>> = (start..end)
+                .into_par_iter()
+                .map(|i| {
+                    let r = one_run(plant, specs, &campaign, i, with_pcrlb);
+                    if let Some(bar) = &progress {
+                        bar.inc(1);
+                    }
+                    r
+                })
+                .collect();
+            let mut failure: Option<Error> = None;
+            for (i, r) in (start..end).zip(results) {
+                match r {
+                    Ok(runs) => add_run(totals, i, runs),
+                    Err(e) => {
+                        let interrupt = matches!(e, Error::Interrupted(_));
+                        if failure.is_none()
+                            || (interrupt && !matches!(failure, Some(Error::Interrupted(_))))
+                        {
+                            failure = Some(e);
+                        }
+                    }
                 }
-                r
-            })
-            .collect();
-        for (i, r) in (start..end).zip(results) {
-            add_run(&mut totals, i, r?);
+            }
+            if let Some(e) = failure {
+                if let Some(bar) = &progress {
+                    bar.abandon();
+                }
+                return Err(e);
+            }
+            after_chunk(totals)?;
+            start = end;
         }
-        start = end;
     }
     if let Some(bar) = progress {
         bar.finish_and_clear();
     }
-    Ok(totals)
+    Ok(())
+}
+
+/// Sorts disjoint run ranges and joins adjacent ones.
+fn join_ranges(covered: &mut Vec<[u64; 2]>) {
+    covered.sort();
+    let mut joined: Vec<[u64; 2]> = Vec::with_capacity(covered.len());
+    for r in covered.drain(..) {
+        match joined.last_mut() {
+            Some(last) if last[1] == r[0] => last[1] = r[1],
+            _ => joined.push(r),
+        }
+    }
+    *covered = joined;
+}
+
+/// The runs of `range` that `totals` does not cover yet, as ranges (what a resumed campaign has
+/// left to do).
+pub fn uncovered(totals: &Totals, range: Range<u64>) -> Vec<Range<u64>> {
+    let mut left = Vec::new();
+    let mut next = range.start;
+    for &[a, b] in &totals.covered {
+        if b <= next || a >= range.end {
+            continue;
+        }
+        if a > next {
+            left.push(next..a);
+        }
+        next = next.max(b);
+    }
+    if next < range.end {
+        left.push(next..range.end);
+    }
+    left
 }
 
 /// Adds shard totals into the totals of the whole campaign. The shards must come from the same
@@ -469,24 +656,22 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
                 )));
             }
         }
-        if part.pcrlb_rmse_all != total.pcrlb_rmse_all {
-            return Err(Error::Usage(
-                "merge: the shards disagree on the PCRLB".into(),
-            ));
+        match (total.pcrlb.as_mut(), &part.pcrlb) {
+            (Some(a), Some(b)) if a.prior_cov == b.prior_cov && a.terms.len() == b.terms.len() => {
+                a.merge(b)
+            }
+            (None, None) => {}
+            _ => {
+                return Err(Error::Usage(
+                    "merge: the shards disagree on the Cramér–Rao bound's set-up".into(),
+                ));
+            }
         }
         for (a, b) in total.filters.iter_mut().zip(&part.filters) {
             a.merge(b)?;
         }
         total.covered.extend(part.covered.iter().copied());
-        total.covered.sort();
-        let mut joined: Vec<[u64; 2]> = Vec::new();
-        for r in total.covered.drain(..) {
-            match joined.last_mut() {
-                Some(last) if last[1] == r[0] => last[1] = r[1],
-                _ => joined.push(r),
-            }
-        }
-        total.covered = joined;
+        join_ranges(&mut total.covered);
     }
     Ok(total)
 }
@@ -622,6 +807,8 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
             0.0
         },
         smoothed_rmse_all: None,
+        smoothed_rmse: None,
+        smoother: None,
         anees_band: if ok { band.map(|b| b.to_array()) } else { None },
         nees_tails: None,
         anis_band: anis_band.map(|b| b.to_array()),
@@ -642,6 +829,10 @@ pub fn summarise(totals: &Totals) -> Summary {
         .map(|t| filter_summary(totals, t))
         .collect();
     let runs = totals.runs_covered();
+    let bound = totals
+        .pcrlb
+        .as_ref()
+        .and_then(|p| p.bound(totals.states.len()).ok());
     let verdict = verdict::verdict(&filters, true, Some(runs), totals.campaign.steps);
     Summary {
         command: "montecarlo".into(),
@@ -652,13 +843,42 @@ pub fn summarise(totals: &Totals) -> Summary {
         filters,
         verdict,
         runs: Some(runs),
-        pcrlb_rmse_all: Some(totals.pcrlb_rmse_all),
+        pcrlb_rmse_all: Some(bound.as_ref().map(|b| b.rmse_all)),
+        pcrlb_rmse: Some(
+            bound.map(|b| StateMap(totals.states.iter().cloned().zip(b.rmse).collect())),
+        ),
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn runs_left_to_do_are_the_gaps_in_the_covered_ranges() {
+        let mut covered = vec![[5, 6], [0, 2], [2, 3], [8, 10]];
+        join_ranges(&mut covered);
+        assert_eq!(covered, vec![[0, 3], [5, 6], [8, 10]]);
+        let totals = Totals {
+            format: PARTIAL_FORMAT.into(),
+            campaign: CampaignSpec {
+                model: "m".into(),
+                set: Vec::new(),
+                runs: 12,
+                steps: 1,
+                seed: 0,
+                filters: Vec::new(),
+            },
+            states: Vec::new(),
+            measurements: 0,
+            covered,
+            filters: Vec::new(),
+            pcrlb: None,
+        };
+        assert_eq!(uncovered(&totals, 0..12), vec![3..5, 6..8, 10..12]);
+        assert_eq!(uncovered(&totals, 2..9), vec![3..5, 6..8]);
+        assert_eq!(uncovered(&totals, 0..3), Vec::<Range<u64>>::new());
+    }
 
     #[test]
     fn shards_partition_the_runs() {

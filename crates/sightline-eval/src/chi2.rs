@@ -1,12 +1,10 @@
 //! χ² quantiles and the two-sided 95 % consistency bands built from them.
 //!
-//! The quantile is the inverse of the regularised lower incomplete gamma function, computed by
-//! the `statrs` crate (safeguarded Newton–Raphson on its incomplete-gamma CDF). The bands follow
+//! The quantile is [`sightline_core::chi2::quantile`] (the inverse of the regularised lower
+//! incomplete gamma function, computed by the `statrs` crate). The bands follow
 //! Bar-Shalom, Li & Kirubarajan, *Estimation with Applications to Tracking and Navigation*
 //! (Wiley 2001), §5.4: the NEES of a consistent filter is χ²(n); the average of `count`
 //! independent χ²(n) values, times `count`, is χ²(count·n).
-
-use statrs::distribution::{ChiSquared, ContinuousCDF};
 
 /// Lower tail probability of the two-sided 95 % band.
 pub const LOWER_TAIL: f64 = 0.025;
@@ -14,24 +12,8 @@ pub const LOWER_TAIL: f64 = 0.025;
 pub const UPPER_TAIL: f64 = 0.975;
 
 /// The `p` quantile of χ²(`dof`), or `None` when `dof` is not positive and finite or `p` is not
-/// inside (0, 1).
-///
-/// ```
-/// use sightline_eval::chi2::quantile;
-/// // χ²(1) 95 % point: P(Z² ≤ z²) = P(|Z| ≤ z) = 0.95 at the standard normal 97.5 % point
-/// // z = 1.959964 (closed form).
-/// let q = quantile(1.0, 0.95).unwrap();
-/// assert!((q - 1.959963984540054_f64.powi(2)).abs() < 1e-8);
-/// assert!(quantile(0.0, 0.5).is_none());
-/// ```
-pub fn quantile(dof: f64, p: f64) -> Option<f64> {
-    if !(dof.is_finite() && dof > 0.0 && p > 0.0 && p < 1.0) {
-        return None;
-    }
-    let dist = ChiSquared::new(dof).ok()?;
-    let q = dist.inverse_cdf(p);
-    q.is_finite().then_some(q)
-}
+/// inside (0, 1). One implementation, in the core crate, shared with the filters' χ² gating.
+pub use sightline_core::chi2::quantile;
 
 /// A closed interval `[lo, hi]` a consistency statistic should fall in.
 #[derive(Debug, Clone, Copy, PartialEq)]

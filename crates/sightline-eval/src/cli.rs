@@ -40,6 +40,17 @@ pub struct PlantArgs {
     pub set: Vec<String>,
 }
 
+impl PlantArgs {
+    /// Inputs given a constant with `--set u.<input>=VALUE` (their data column may be absent).
+    pub fn set_input_names(&self) -> Vec<String> {
+        self.set
+            .iter()
+            .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
+            .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
+            .collect()
+    }
+}
+
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -80,7 +91,8 @@ pub enum Command {
         /// Seed of the sampling filters' random streams.
         #[arg(long, default_value_t = 0)]
         seed: u64,
-        /// Also run the smoothers and report smoothed accuracy.
+        /// Also smooth every filter that has a smoother: smoothed_rmse_all in summary.json,
+        /// DIR/smoothed.csv and smoothed plots (holds the run in memory).
         #[arg(long)]
         smooth: bool,
         /// Treat non-finite measurement cells (nan, inf) as missing instead of rejecting them.
@@ -238,8 +250,10 @@ where
 }
 
 /// Runs the process's command line on `plants`, prints any error and returns the exit code
-/// (0 success, 1 a run failed, 2 bad input or usage).
+/// (0 success, 1 a run failed, 2 bad input or usage, 130 interrupted by Ctrl-C). Installs the
+/// Ctrl-C handler ([`crate::interrupt`]).
 pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
+    crate::interrupt::install();
     match run(std::env::args_os(), &plants) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {

@@ -1,4 +1,5 @@
-//! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input).
+//! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input,
+//! 130 interrupted by Ctrl-C).
 
 use std::path::PathBuf;
 
@@ -49,10 +50,15 @@ pub enum Error {
     /// A run that failed (exit code 1).
     #[error("{0}")]
     Run(String),
+    /// Stopped by Ctrl-C (SIGINT) before it finished (exit code 130); the message says what was
+    /// kept (see [`crate::interrupt`]).
+    #[error("{0}")]
+    Interrupted(String),
 }
 
 impl Error {
-    /// Process exit code for this error: 2 for bad input or usage, 1 for a failed run.
+    /// Process exit code for this error: 2 for bad input or usage, 1 for a failed run, 130 for
+    /// an interrupted one.
     pub fn exit_code(&self) -> u8 {
         match self {
             Error::Usage(_)
@@ -61,6 +67,7 @@ impl Error {
             | Error::Data { .. }
             | Error::Read { .. } => 2,
             Error::Write { .. } | Error::Run(_) => 1,
+            Error::Interrupted(_) => crate::interrupt::EXIT_CODE,
         }
     }
 

@@ -6,12 +6,14 @@
 //! HTML page), [`verdict`] (the findings), and the [`runner`] underneath them.
 
 pub mod campaign;
+pub mod checkpoint;
 pub mod chi2;
 pub mod cli;
 pub mod commands;
 pub mod dataset;
 pub mod error;
 pub mod exact_sum;
+pub mod interrupt;
 pub mod metrics;
 pub mod output;
 pub mod pcrlb;

@@ -27,6 +27,12 @@ pub fn write_file<F>(path: &Path, fill: F) -> Result<()>
 where
     F: FnOnce(&mut dyn Write) -> Result<()>,
 {
+    if path.is_dir() {
+        return Err(Error::Usage(format!(
+            "-o {}: it is a directory; expected a file name",
+            path.display()
+        )));
+    }
     let dir = parent_of(path);
     fs::create_dir_all(&dir).map_err(write_err(&dir))?;
     let tmp = tempfile::NamedTempFile::new_in(&dir).map_err(write_err(&dir))?;
@@ -42,6 +48,10 @@ where
     Ok(())
 }
 
+/// Files whose presence marks a directory as an earlier Sightline output that a new run may
+/// replace.
+pub const OUTPUT_MARKERS: &[&str] = &["summary.json", "partial.json", "tuned.json"];
+
 /// An output directory under construction: files go into a hidden temporary directory beside
 /// the target; [`OutputDir::commit`] replaces the target with it in one rename. Dropped without
 /// commit (error, panic or interrupt), the temporary directory is removed.
@@ -52,8 +62,38 @@ pub struct OutputDir {
 }
 
 impl OutputDir {
-    /// Starts an output directory that will become `target`.
+    /// Starts an output directory that will become `target`. An existing `target` is replaced
+    /// on commit only if it is a directory that is empty or holds an earlier Sightline output
+    /// (one of [`OUTPUT_MARKERS`]): a file, or a directory of something else, is a usage error
+    /// rather than something to delete.
     pub fn new(target: &Path) -> Result<Self> {
+        if target.exists() {
+            let refuse = |what: &str| {
+                Err(Error::Usage(format!(
+                    "-o {}: {what}; give a new directory (or an earlier Sightline output to \
+                     replace)",
+                    target.display()
+                )))
+            };
+            if !target.is_dir() {
+                return refuse("it exists and is not a directory");
+            }
+            let entries: Vec<String> = fs::read_dir(target)
+                .map_err(write_err(target))?
+                .filter_map(|e| e.ok())
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .collect();
+            let ours = entries.is_empty()
+                || entries
+                    .iter()
+                    .any(|name| OUTPUT_MARKERS.contains(&name.as_str()));
+            if !ours {
+                return refuse(
+                    "it is a directory that does not hold a Sightline output, and it would be \
+                     replaced",
+                );
+            }
+        }
         let parent = parent_of(target);
         fs::create_dir_all(&parent).map_err(write_err(&parent))?;
         let name = target

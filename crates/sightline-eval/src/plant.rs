@@ -11,10 +11,10 @@ use sightline_core::{Alloc, Gaussian, Model, ParamError, Parameter, Variable};
 use sightline_filters::{Filter, FilterSpec, SpecError};
 use sightline_models::ModelVisitor;
 
-use crate::dataset::Dataset;
+use crate::dataset::{Dataset, Layout, Record};
 use crate::error::Result;
-use crate::pcrlb::{Bound, pcrlb};
-use crate::simulate::{SimOptions, simulate};
+use crate::pcrlb::{Bound, information_terms, pcrlb};
+use crate::simulate::{SimOptions, simulate, simulate_each};
 
 /// A plant as the commands see it, whatever its concrete model type.
 pub trait AnyPlant: Send + Sync {
@@ -45,10 +45,21 @@ pub trait AnyPlant: Send + Sync {
     fn build_filter(&self, spec: &FilterSpec, seed: u64) -> Result<Box<dyn Filter>, SpecError>;
     /// Simulates a dataset with truth.
     fn simulate(&self, steps: usize, seed: u64, options: &SimOptions) -> Result<Dataset>;
+    /// Simulates like [`AnyPlant::simulate`], handing each row to `sink` as it is drawn
+    /// (constant memory, for long files); returns the layout of the rows.
+    fn simulate_each(
+        &self,
+        steps: usize,
+        seed: u64,
+        options: &SimOptions,
+        sink: &mut dyn FnMut(&Record) -> Result<()>,
+    ) -> Result<Layout>;
     /// A boxed copy (each Monte Carlo worker owns one).
     fn clone_box(&self) -> Box<dyn AnyPlant>;
     /// The posterior Cramér–Rao bound along the given true trajectories (see [`crate::pcrlb`]).
     fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound>;
+    /// One trajectory's information terms for the bound (see [`crate::pcrlb::information_terms`]).
+    fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>>;
 }
 
 impl Clone for Box<dyn AnyPlant> {
@@ -250,11 +261,34 @@ where
         )
     }
 
+    fn simulate_each(
+        &self,
+        steps: usize,
+        seed: u64,
+        options: &SimOptions,
+        sink: &mut dyn FnMut(&Record) -> Result<()>,
+    ) -> Result<Layout> {
+        simulate_each(
+            &self.model,
+            &self.prior_gaussian(),
+            &self.input_vector(),
+            steps,
+            seed,
+            options,
+            sink,
+        )?;
+        Ok(crate::simulate::layout(&self.model))
+    }
+
     fn clone_box(&self) -> Box<dyn AnyPlant> {
         Box::new(self.clone())
     }
 
     fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound> {
         pcrlb(&self.model, &self.prior_gaussian(), truths)
+    }
+
+    fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>> {
+        information_terms(&self.model, truth)
     }
 }

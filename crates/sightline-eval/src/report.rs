@@ -400,11 +400,18 @@ fn band_text(b: Option<[f64; 2]>) -> String {
 /// The columns of the summary table (terminal and HTML), one row per filter.
 pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
     let campaign = summary.runs.is_some();
+    let smoothed = summary
+        .filters
+        .iter()
+        .any(|f| f.smoothed_rmse_all.is_some());
     let mut header = vec!["filter".to_string(), "status".to_string()];
     if summary.truth {
         header.push("rmse_all".into());
         if campaign {
             header.push("± spread".into());
+        }
+        if smoothed {
+            header.push("smoothed".into());
         }
         header.push("ANEES [95 % band]".into());
         header.push("NEES in band".into());
@@ -434,6 +441,9 @@ pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
                 row.push(opt(f.rmse_all, 4));
                 if campaign {
                     row.push(opt(f.rmse_all_spread, 2));
+                }
+                if smoothed {
+                    row.push(opt(f.smoothed_rmse_all, 4));
                 }
                 row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
                 row.push(share(f.nees_in_band));
@@ -646,6 +656,9 @@ pub fn compare_plots(
         }
         plots.push(Plot::Lines(plot));
     }
+    if series.smoothed() {
+        plots.extend(smoothed_plots(summary, series, states));
+    }
     for (j, meas) in measurements.iter().enumerate().take(m) {
         if shown_measurement[j] {
             continue;
@@ -789,6 +802,84 @@ pub fn compare_plots(
     plots
 }
 
+/// One plot per state of every smoothed track (`compare --smooth`): smoothed mean with its ±2σ
+/// band per filter that has a smoother, and the truth.
+fn smoothed_plots(
+    summary: &Summary,
+    series: &Series,
+    states: &[sightline_core::Variable],
+) -> Vec<Plot> {
+    let (n, nf) = (series.states, series.filters);
+    let rows = series.len();
+    let mut plots = Vec::new();
+    for (i, state) in states.iter().enumerate().take(n) {
+        let at = |r: usize, f: usize| (r * nf + f) * n + i;
+        let mut areas = Vec::new();
+        let mut lines = Vec::new();
+        for f in 0..nf {
+            if (0..rows).all(|r| series.smoothed_mean[at(r, f)].is_nan()) {
+                continue;
+            }
+            let fs = summary.filters.get(f);
+            let name = fs.map_or(String::new(), |fs| match &fs.smoother {
+                Some(kind) => format!("{} ({kind})", fs.label),
+                None => fs.label.clone(),
+            });
+            areas.push(Area {
+                name: String::new(),
+                colour: colour(f),
+                opacity: 0.15,
+                points: (0..rows)
+                    .map(|r| {
+                        let (mu, sd) =
+                            (series.smoothed_mean[at(r, f)], series.smoothed_sd[at(r, f)]);
+                        (series.t[r], mu - 2.0 * sd, mu + 2.0 * sd)
+                    })
+                    .collect(),
+            });
+            lines.push(Line {
+                name,
+                colour: colour(f),
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.smoothed_mean[at(r, f)]))
+                    .collect(),
+                width: 1,
+            });
+        }
+        if lines.is_empty() {
+            continue;
+        }
+        if summary.truth {
+            lines.push(Line {
+                name: "truth".into(),
+                colour: BLACK,
+                points: (0..rows)
+                    .map(|r| (series.t[r], series.truth[r * n + i]))
+                    .collect(),
+                width: 2,
+            });
+        }
+        plots.push(Plot::Lines(LinePlot {
+            id: format!("smoothed-{}", state.name),
+            title: format!("{} smoothed [{}]", state.name, state.unit),
+            x_label: "t [s]".into(),
+            y_label: format!("{} [{}]", state.name, state.unit),
+            areas,
+            lines,
+            dots: Vec::new(),
+            log_y: false,
+            caption: format!(
+                "State {}: each smoother's estimate from all the measurements (--smooth), with \
+                 its ±2σ band{}. Rauch–Tung–Striebel for the Gaussian filters (sigma-point and \
+                 ensemble forms), backward simulation for the particle filter.",
+                state.name,
+                if summary.truth { ", and the truth" } else { "" }
+            ),
+        }));
+    }
+    plots
+}
+
 /// RMSE (with Monte Carlo spread) and cost bars.
 pub fn bar_plots(summary: &Summary) -> Vec<Plot> {
     let mut plots = Vec::new();
@@ -821,6 +912,31 @@ pub fn bar_plots(summary: &Summary) -> Vec<Plot> {
             } else {
                 "Root mean squared error over steps and states.".into()
             },
+        }));
+    }
+    if summary.truth && ok.iter().any(|(_, f)| f.smoothed_rmse_all.is_some()) {
+        plots.push(Plot::Bars(BarPlot {
+            id: "smoothed-rmse".into(),
+            title: "accuracy: filtered and smoothed rmse_all".into(),
+            y_label: "rmse_all".into(),
+            bars: ok
+                .iter()
+                .filter_map(|(i, f)| Some((i, f, f.smoothed_rmse_all?)))
+                .flat_map(|(i, f, smoothed)| {
+                    [
+                        (
+                            f.label.clone(),
+                            f.rmse_all.unwrap_or(f64::NAN),
+                            None,
+                            colour(*i),
+                        ),
+                        (format!("{} smoothed", f.label), smoothed, None, colour(*i)),
+                    ]
+                })
+                .collect(),
+            caption: "Root mean squared error of each filter and of its smoother (--smooth) over \
+                      steps and states: what the measurements after each step add."
+                .into(),
         }));
     }
     plots.push(Plot::Bars(BarPlot {

@@ -11,12 +11,20 @@
 //! each filter's posterior is handed to an [`Observer`] (which may write `estimates.csv` as it
 //! goes), metrics are accumulated online and the plot series is decimated to a bounded size, so
 //! memory does not grow with the length of the file. A filter that fails is marked failed with
-//! its error (which names the step) and the others go on.
+//! its error (which names the step) and the others go on. A Ctrl-C stops the run before the
+//! next row with [`Error::Interrupted`] ([`crate::interrupt`]).
+//!
+//! **Smoothing** ([`RunConfig::smooth`]) is the exception to bounded memory: every filter is asked
+//! to record its forward pass ([`Filter::record_for_smoothing`]), the run keeps the times and the
+//! truth of every row, and after the last row each filter that ran to the end is smoothed
+//! ([`Filter::smooth`]); its smoothed track and smoothed RMSE go into its [`FilterOutcome`]. So
+//! a smoothed run holds the whole run in memory (a Gaussian filter records 3n²+2n numbers per
+//! row, `pf` N·(n+1)); filtering without smoothing still streams.
 
 use std::time::Instant;
 
 use sightline_core::rng::derive_seed;
-use sightline_filters::{Diagnostics, Filter, FilterSpec};
+use sightline_filters::{Diagnostics, Filter, FilterSpec, SmoothedTrack};
 
 use crate::dataset::read::RecordSource;
 use crate::dataset::{Layout, Record};
@@ -33,6 +41,9 @@ pub struct RunConfig {
     pub series_points: usize,
     /// Lags of the whiteness test.
     pub whiteness_lags: usize,
+    /// Record every filter's forward pass and smooth it at the end (holds the run in memory; see
+    /// the module docs).
+    pub smooth: bool,
 }
 
 impl Default for RunConfig {
@@ -41,6 +52,7 @@ impl Default for RunConfig {
             seed: 0,
             series_points: 1000,
             whiteness_lags: DEFAULT_WHITENESS_LAGS,
+            smooth: false,
         }
     }
 }
@@ -234,6 +246,11 @@ pub struct Series {
     pub nis: Vec<f64>,
     /// NIS degrees of freedom, `filters` per row (0 without a measurement).
     pub nis_dof: Vec<u32>,
+    /// Smoothed means, `filters × states` per row (NaN for a filter without a smoothed track);
+    /// empty unless the run was smoothed.
+    pub smoothed_mean: Vec<f64>,
+    /// Smoothed standard deviations, like `smoothed_mean`.
+    pub smoothed_sd: Vec<f64>,
 }
 
 impl Series {
@@ -252,6 +269,34 @@ impl Series {
             nees: Vec::new(),
             nis: Vec::new(),
             nis_dof: Vec::new(),
+            smoothed_mean: Vec::new(),
+            smoothed_sd: Vec::new(),
+        }
+    }
+
+    /// Whether the series carries smoothed tracks.
+    pub fn smoothed(&self) -> bool {
+        !self.smoothed_mean.is_empty()
+    }
+
+    /// Fills the smoothed columns from each filter's track: kept row r is dataset row
+    /// r·`stride` (rows kept are the multiples of the current stride).
+    fn set_smoothed(&mut self, tracks: &[Option<&SmoothedTrack>]) {
+        let (f, n) = (self.filters, self.states);
+        let rows = self.t.len();
+        self.smoothed_mean = vec![f64::NAN; rows * f * n];
+        self.smoothed_sd = vec![f64::NAN; rows * f * n];
+        for (index, track) in tracks.iter().enumerate() {
+            let Some(track) = track else { continue };
+            for r in 0..rows {
+                let k = r * self.stride as usize;
+                let (Some(mean), Some(sd)) = (track.means.get(k), track.std_devs(k)) else {
+                    continue;
+                };
+                let at = (r * f + index) * n;
+                self.smoothed_mean[at..at + n].copy_from_slice(&mean[..n]);
+                self.smoothed_sd[at..at + n].copy_from_slice(&sd[..n]);
+            }
         }
     }
 
@@ -342,6 +387,36 @@ pub struct FilterOutcome {
     pub metrics: FilterMetrics,
     /// The filter's own counters at the end.
     pub diagnostics: Diagnostics,
+    /// What smoothing gave, when the run was smoothed and the filter ran to the end.
+    pub smoothing: Option<Smoothing>,
+}
+
+/// What became of smoothing one filter's run.
+#[derive(Debug, Clone)]
+pub enum Smoothing {
+    /// The filter has no smoother (e.g. `kf` with a constant gain).
+    Unsupported,
+    /// The backward pass failed; the filtered results stand.
+    Failed(String),
+    /// The smoothed track, one epoch per row.
+    Done {
+        /// Smoothed mean and covariance of every row.
+        track: SmoothedTrack,
+        /// RMSE of the smoothed means per state (model order), `None` without truth.
+        rmse: Option<Vec<f64>>,
+        /// √(mean over rows and states of the squared smoothed error), `None` without truth.
+        rmse_all: Option<f64>,
+    },
+}
+
+impl Smoothing {
+    /// The smoothed track, if smoothing succeeded.
+    pub fn track(&self) -> Option<&SmoothedTrack> {
+        match self {
+            Smoothing::Done { track, .. } => Some(track),
+            _ => None,
+        }
+    }
 }
 
 impl FilterOutcome {
@@ -364,6 +439,8 @@ pub struct RunOutcome {
     pub filters: Vec<FilterOutcome>,
     /// The decimated series for plots (`None` with `series_points = 0`).
     pub series: Option<Series>,
+    /// Time of every row, kept only when the run was smoothed (for `smoothed.csv`).
+    pub times: Vec<f64>,
 }
 
 /// Per-filter working state of a run.
@@ -400,6 +477,13 @@ pub fn run(
     let truth = !layout.states.is_empty();
     let mut lanes: Vec<Lane> = filters
         .into_iter()
+        .map(|mut filter| {
+            if config.smooth {
+                // A filter without a smoother declines; it is reported as such at the end.
+                filter.record_for_smoothing();
+            }
+            filter
+        })
         .map(|filter| Lane {
             outcome: FilterOutcome {
                 label: filter.label().to_string(),
@@ -408,6 +492,7 @@ pub fn run(
                 failed_at: None,
                 metrics: FilterMetrics::new(n, m, config.whiteness_lags),
                 diagnostics: Diagnostics::default(),
+                smoothing: None,
             },
             filter,
             sd: vec![0.0; n],
@@ -421,7 +506,25 @@ pub fn run(
     let mut record = Record::empty();
     let mut previous: Option<(f64, Vec<f64>)> = None;
     let mut k: u64 = 0;
+    // Smoothing only: the time and truth of every row.
+    let (mut times, mut truths) = (Vec::new(), Vec::new());
     while source.next_into(&mut record)? {
+        crate::interrupt::check(|| format!("at row {k}"))?;
+        if let Some(x) = &record.x {
+            if x.len() != n {
+                return Err(Error::Usage(format!(
+                    "row {k}: the truth has {} values but model '{}' has {n} states",
+                    x.len(),
+                    plant.name()
+                )));
+            }
+        }
+        if config.smooth {
+            times.push(record.t);
+            if let Some(x) = &record.x {
+                truths.extend_from_slice(x);
+            }
+        }
         let keep = series
             .as_mut()
             .map(|s| {
@@ -481,9 +584,23 @@ pub fn run(
                 }
                 let Some(nees) = normalised_squared(cov, &lane.error, &mut lane.work, &mut lane.z)
                 else {
+                    // Either P is not positive definite, or it is and the error is so large
+                    // that eᵀP⁻¹e overflows (e.g. after an absurd measurement).
+                    let zero = vec![0.0; n];
+                    let definite =
+                        normalised_squared(cov, &zero, &mut lane.work, &mut lane.z).is_some();
+                    let reason = if definite {
+                        let far = lane.error.iter().fold(0.0_f64, |a, e| a.max(e.abs()));
+                        format!(
+                            "its NEES is not finite: the estimate is {far:e} away from the truth"
+                        )
+                    } else {
+                        "the posterior covariance is not positive definite, so its NEES is \
+                         undefined"
+                            .to_string()
+                    };
                     let message = format!(
-                        "filter '{label}' failed at step {k} (t = {}): the posterior covariance \
-                         is not positive definite, so its NEES is undefined",
+                        "filter '{label}' failed at step {k} (t = {}): {reason}",
                         record.t
                     );
                     lane.fail(k, message);
@@ -525,18 +642,72 @@ pub fn run(
         }
         k += 1;
     }
-    let filters = lanes
+    let truth_rows = (truth && truths.len() == times.len() * n).then_some(truths.as_slice());
+    let filters: Vec<FilterOutcome> = lanes
         .into_iter()
         .map(|mut lane| {
             lane.outcome.diagnostics = lane.filter.diagnostics();
+            if config.smooth && lane.outcome.ok() {
+                lane.outcome.smoothing = Some(smooth(lane.filter.as_ref(), k, n, truth_rows));
+            }
             lane.outcome
         })
         .collect();
+    if let Some(s) = series.as_mut().filter(|_| config.smooth) {
+        let tracks: Vec<Option<&SmoothedTrack>> = filters
+            .iter()
+            .map(|f| f.smoothing.as_ref().and_then(Smoothing::track))
+            .collect();
+        s.set_smoothed(&tracks);
+    }
     Ok(RunOutcome {
         steps: k,
         layout,
         truth,
         filters,
         series,
+        times,
     })
+}
+
+/// Smooths a filter that ran over `steps` rows of an `n`-state plant and scores the smoothed
+/// means against the truth (`n` values per row), if known.
+fn smooth(filter: &dyn Filter, steps: u64, n: usize, truth: Option<&[f64]>) -> Smoothing {
+    let track = match filter.smooth() {
+        None => return Smoothing::Unsupported,
+        Some(Err(e)) => return Smoothing::Failed(e.to_string()),
+        Some(Ok(track)) => track,
+    };
+    let label = filter.label();
+    if track.len() as u64 != steps || track.means.iter().any(|m| m.len() != n) {
+        return Smoothing::Failed(format!(
+            "smoother of filter '{label}' returned {} epochs for {steps} rows",
+            track.len()
+        ));
+    }
+    if track.means.iter().flatten().any(|v| !v.is_finite()) {
+        return Smoothing::Failed(format!(
+            "smoother of filter '{label}' returned a non-finite smoothed mean"
+        ));
+    }
+    let (rmse, rmse_all) = match truth {
+        Some(x) if steps > 0 && n > 0 => {
+            let mut per_state = vec![0.0; n];
+            for (k, mean) in track.means.iter().enumerate() {
+                for i in 0..n {
+                    per_state[i] += (mean[i] - x[k * n + i]).powi(2);
+                }
+            }
+            let rows = steps as f64;
+            let all = (per_state.iter().sum::<f64>() / (rows * n as f64)).sqrt();
+            let per_state = per_state.iter().map(|s| (s / rows).sqrt()).collect();
+            (Some(per_state), Some(all))
+        }
+        _ => (None, None),
+    };
+    Smoothing::Done {
+        track,
+        rmse,
+        rmse_all,
+    }
 }

@@ -73,7 +73,19 @@ where
     factor * z
 }
 
-/// Simulates `steps` rows of `model` from `prior` under the constant input `u`.
+/// The dataset layout of a simulation of `model` (truth included).
+pub fn layout<M: Model>(model: &M) -> Layout
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    Layout {
+        inputs: model.inputs().into_iter().map(|v| v.name).collect(),
+        measurements: model.measurements().into_iter().map(|v| v.name).collect(),
+        states: model.states().into_iter().map(|v| v.name).collect(),
+    }
+}
+
+/// Simulates `steps` rows of `model` from `prior` under the constant input `u`, in memory.
 pub fn simulate<M: Model>(
     model: &M,
     prior: &Gaussian<M::State>,
@@ -82,6 +94,33 @@ pub fn simulate<M: Model>(
     seed: u64,
     options: &SimOptions,
 ) -> Result<Dataset>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    // Grows as rows arrive: a huge `steps` fails for lack of memory row by row, not up front.
+    let mut records = Vec::with_capacity(steps.min(1 << 16));
+    simulate_each(model, prior, u, steps, seed, options, &mut |r| {
+        records.push(r.clone());
+        Ok(())
+    })?;
+    Ok(Dataset {
+        layout: layout(model),
+        records,
+    })
+}
+
+/// Simulates `steps` rows like [`simulate`] and hands each to `sink` as it is drawn, so that a
+/// long simulation streams to a file in constant memory. The rows are the same as
+/// [`simulate`]'s, bit for bit.
+pub fn simulate_each<M: Model>(
+    model: &M,
+    prior: &Gaussian<M::State>,
+    u: &OVector<f64, M::Input>,
+    steps: usize,
+    seed: u64,
+    options: &SimOptions,
+    sink: &mut dyn FnMut(&Record) -> Result<()>,
+) -> Result<()>
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
@@ -107,13 +146,9 @@ where
         &prior.mean + draw(&mut rng, &noise_factor(&prior.cov, "prior covariance")?)
     };
     model.project(&mut x);
-    let layout = Layout {
-        inputs: model.inputs().into_iter().map(|v| v.name).collect(),
-        measurements: model.measurements().into_iter().map(|v| v.name).collect(),
-        states: model.states().into_iter().map(|v| v.name).collect(),
-    };
-    let mut records = Vec::with_capacity(steps);
+    let mut record = Record::empty();
     for k in 0..steps {
+        crate::interrupt::check(|| format!("while simulating row {k}"))?;
         let t = k as f64 * dt;
         let mut y = model.measure(&x, u, t);
         if !options.noise_free {
@@ -126,18 +161,21 @@ where
                 *yi = f64::NAN;
             }
         }
-        if x.iter().any(|v| !v.is_finite()) {
+        if x.iter().any(|v| !v.is_finite()) || !t.is_finite() {
             return Err(Error::Run(format!(
                 "simulation of '{}' left the finite range at t = {t} s (row {k}); check the parameters",
                 model.name()
             )));
         }
-        records.push(Record {
-            t,
-            u: u.as_slice().to_vec(),
-            y: y.as_slice().to_vec(),
-            x: Some(x.as_slice().to_vec()),
-        });
+        record.t = t;
+        record.u.clear();
+        record.u.extend_from_slice(u.as_slice());
+        record.y.clear();
+        record.y.extend_from_slice(y.as_slice());
+        let truth = record.x.get_or_insert_with(Vec::new);
+        truth.clear();
+        truth.extend_from_slice(x.as_slice());
+        sink(&record)?;
         let mut next = model.transition(&x, u, t, dt);
         if !options.noise_free {
             let q = model.process_noise(&x, u, t, dt);
@@ -146,5 +184,5 @@ where
         model.project(&mut next);
         x = next;
     }
-    Ok(Dataset { layout, records })
+    Ok(())
 }

@@ -3,7 +3,8 @@
 //!
 //! Contract keys per filter: `label`, `kind`, `status` (`ok`/`failed`), `error`, `rmse` (state →
 //! value, model order), `rmse_all`, `anees`, `nees_in_band`, `anis`, `nis_in_band`,
-//! `log_likelihood`, `seconds_per_step`, `smoothed_rmse_all`; `montecarlo` adds `runs`,
+//! `log_likelihood`, `seconds_per_step`, `smoothed_rmse_all` (with `compare --smooth` also
+//! `smoothed_rmse`, state → value, and `smoother`); `montecarlo` adds `runs`,
 //! `failures`, `rmse_all_spread` and `anees_band`, and at top level `runs` and
 //! `pcrlb_rmse_all`. Extra keys (bands, whiteness, diagnostics, criteria) add detail without
 //! changing any contract key.
@@ -125,8 +126,16 @@ pub struct FilterSummary {
     pub log_likelihood: Option<f64>,
     /// Wall-clock seconds per predict + update (a measurement: it varies between runs).
     pub seconds_per_step: f64,
-    /// RMSE of the smoothed estimates; null unless `--smooth` runs a smoother.
+    /// RMSE of the smoothed estimates (all rows and states); null unless `--smooth` ran this
+    /// filter's smoother on data with truth.
     pub smoothed_rmse_all: Option<f64>,
+    /// RMSE of the smoothed estimates per state in model order; null like `smoothed_rmse_all`.
+    #[serde(default)]
+    pub smoothed_rmse: Option<StateMap>,
+    /// The smoother run with `--smooth` (`rts`, `sigma-point-rts`, `ensemble-rts`, `ffbsi`), or
+    /// null if none ran.
+    #[serde(default)]
+    pub smoother: Option<String>,
     /// 95 % band of `anees`: χ²(K·n)/K with K = steps (`compare`, time average) or K = runs
     /// (`montecarlo`, Bar-Shalom et al. 2001 §5.4).
     pub anees_band: Option<[f64; 2]>,
@@ -182,6 +191,19 @@ pub struct Summary {
         deserialize_with = "present_or_null"
     )]
     pub pcrlb_rmse_all: Option<Option<f64>>,
+    /// Monte Carlo: the Cramér–Rao bound per state, comparable with each filter's `rmse`.
+    #[serde(
+        default,
+        skip_serializing_if = "Option::is_none",
+        deserialize_with = "state_map_or_null"
+    )]
+    pub pcrlb_rmse: Option<Option<StateMap>>,
+}
+
+fn state_map_or_null<'de, D: Deserializer<'de>>(
+    d: D,
+) -> Result<Option<Option<StateMap>>, D::Error> {
+    Ok(Some(Option::<StateMap>::deserialize(d)?))
 }
 
 fn present_or_null<'de, D: Deserializer<'de>>(d: D) -> Result<Option<Option<f64>>, D::Error> {

@@ -436,6 +436,8 @@ mod tests {
             log_likelihood: Some(-rmse),
             seconds_per_step: cost,
             smoothed_rmse_all: None,
+            smoothed_rmse: None,
+            smoother: None,
             anees_band: Some([1.8, 2.2]),
             nees_tails: None,
             anis_band: Some([0.9, 1.1]),

@@ -43,6 +43,8 @@ pub(crate) mod purpose {
     pub const AUXILIARY_PROPAGATE: u64 = 7;
     /// Perturbed observations of the ensemble Kalman filter.
     pub const PERTURB: u64 = 8;
+    /// Backward simulation of the particle smoother.
+    pub const SMOOTH: u64 = 9;
 }
 
 /// Number of blocks for `count` samples.
@@ -350,10 +352,82 @@ where
     total
 }
 
+/// w Σᵢ dᵢ eᵢᵀ with dᵢ = `state_residual(aᵢ, mean_a)` and eᵢ = `state_residual(bᵢ, mean_b)` over
+/// two clouds of the same size (the ensemble before and after a forecast), by per-block partial
+/// sums combined in block order. `partials` holds one slot of `stride ≥ n²` values per block.
+pub(crate) fn cross_covariance<M: Model>(
+    model: &M,
+    (a, mean_a): (&[f64], &OVector<f64, M::State>),
+    (b, mean_b): (&[f64], &OVector<f64, M::State>),
+    weight: f64,
+    partials: &mut [f64],
+    stride: usize,
+) -> OMatrix<f64, M::State, M::State>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    let nd = model.state_dim();
+    let n = nd.value();
+    let (mean_a, mean_b) = (mean_a.as_slice(), mean_b.as_slice());
+    (
+        a.par_chunks(n * BLOCK),
+        b.par_chunks(n * BLOCK),
+        partials.par_chunks_mut(stride),
+    )
+        .into_par_iter()
+        .with_min_len(min_blocks_per_job())
+        .for_each(|(xs, zs, slot)| {
+            let (ca, cb) = (vector(nd, mean_a), vector(nd, mean_b));
+            let mut sum = OMatrix::<f64, M::State, M::State>::zeros_generic(nd, nd);
+            for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact(n)) {
+                let d = model.state_residual(&vector(nd, x), &ca);
+                let e = model.state_residual(&vector(nd, z), &cb);
+                sum.ger(1.0, &d, &e, 1.0);
+            }
+            slot[..n * n].copy_from_slice(sum.as_slice());
+        });
+    let mut total = OMatrix::<f64, M::State, M::State>::zeros_generic(nd, nd);
+    let blocks = block_count(a.len() / n.max(1));
+    for slot in partials.chunks_exact(stride).take(blocks) {
+        for (t, s) in total.iter_mut().zip(&slot[..n * n]) {
+            *t += s;
+        }
+    }
+    total * weight
+}
+
 /// A state cloud as a matrix with one sample per column (the layout of `Model::state_mean`).
 pub(crate) fn cloud_matrix<N: Dim>(n: N, count: usize) -> OMatrix<f64, N, Dyn>
 where
     DefaultAllocator: nalgebra::allocator::Allocator<N, Dyn>,
 {
     OMatrix::<f64, N, Dyn>::zeros_generic(n, Dyn(count))
+}
+
+/// Most values (samples × states) one sample buffer may hold: 2·10⁸ doubles, 1.6 GB. A particle
+/// filter keeps two to four such buffers, so larger clouds would exhaust the memory of most
+/// machines and abort the process instead of failing with a message.
+pub const MAX_CLOUD_VALUES: usize = 200_000_000;
+
+/// Checks that `count` samples of `n` states fit [`MAX_CLOUD_VALUES`]; the error names the
+/// option (`key`) and the largest count that fits.
+pub(crate) fn check_cloud_size(
+    label: &str,
+    key: &str,
+    count: usize,
+    n: usize,
+) -> Result<(), crate::spec::SpecError> {
+    if count.saturating_mul(n.max(1)) <= MAX_CLOUD_VALUES {
+        return Ok(());
+    }
+    Err(crate::spec::SpecError::BadValue {
+        spec: label.to_string(),
+        key: key.to_string(),
+        value: count.to_string(),
+        expected: format!(
+            "at most {} for a plant with {n} states (a sample buffer holds {key} × states \
+             values, at most {MAX_CLOUD_VALUES})",
+            MAX_CLOUD_VALUES / n.max(1)
+        ),
+    })
 }

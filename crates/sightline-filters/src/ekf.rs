@@ -5,25 +5,31 @@
 //! 2006, §13.2). Jacobians come from num-dual in one forward pass with vector duals, or from
 //! the model's hand-written Jacobian when it supplies one (`jacobian=model`, the default).
 
-use nalgebra::DefaultAllocator;
+use nalgebra::{DefaultAllocator, Dim};
 use sightline_core::ad::Differentiable;
 use sightline_core::{Alloc, Gaussian, Model};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 
 /// Registry entry.
 pub const INFO: KindInfo = KindInfo {
     kind: "ekf",
     about: "extended Kalman filter, exact Jacobians by automatic differentiation",
-    options: &[OptionInfo {
-        key: "jacobian",
-        default: "model",
-        about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
-    }],
+    options: &[
+        OptionInfo {
+            key: "jacobian",
+            default: "model",
+            about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
+        },
+        REPAIR,
+        FLOOR,
+        GATE,
+    ],
     linear_only: false,
 };
 
@@ -98,9 +104,9 @@ where
         "ad" => JacobianSource::Automatic,
         _ => JacobianSource::Model,
     };
-    Ok(Box::new(
-        Ekf::new(model.clone(), prior.clone(), &spec.label).with_jacobians(source),
-    ))
+    let mut ekf = Ekf::new(model.clone(), prior.clone(), &spec.label).with_jacobians(source);
+    ekf.belief.remedies = Remedies::from_options(&opts, model.meas_dim().value())?;
+    Ok(Box::new(ekf))
 }
 
 impl<M: Model> Filter for Ekf<M>
@@ -114,12 +120,21 @@ where
         INFO.kind
     }
 
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::Rts)
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         let b = &mut self.belief;
         b.tag.step += 1;
         let u = b.input(u)?;
         let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
         let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
         b.mean = fx;
         b.cov = &f * &b.cov * f.transpose() + q;
         b.finish_predict()

@@ -20,6 +20,13 @@
 //! ensemble's Gaussian predictive, ln N(r(y, ẑ); 0, S) — exact only for a linear-Gaussian plant
 //! as N → ∞, an approximation otherwise.
 //!
+//! **Smoothing.** When recording ([`crate::Filter::record_for_smoothing`]) the forecast keeps a
+//! copy of the members it started from and records the ensemble's filtered and forecast moments
+//! with their sample cross-covariance Σ (xᵢ(k−1) − x̄(k−1))(xᵢ(k) − x̄(k))ᵀ/(N−1); the Gaussian
+//! RTS pass of [`crate::smoother`] on these moments is the moment form of the ensemble RTS
+//! smoother (Raanes, Q. J. R. Meteorol. Soc. 142, 2016). Its gain carries the ensemble's
+//! sampling error, so it is a good smoother for large ensembles and a rough one for small.
+//!
 //! **Parallel and reproducible.** As for the particle filter: blocks of 1024 members, a random
 //! stream per (seed, step, block), partial sums combined in block order — bit-identical output
 //! for any thread count, no heap allocation in a step for static plant sizes on a one-thread
@@ -37,6 +44,7 @@ use crate::cloud::{
 };
 use crate::filter::{Filter, FilterError, Innovation, Tag};
 use crate::registry::KindInfo;
+use crate::smoother::{GaussianRecord, SmoothedTrack, SmootherKind};
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{InnovationStore, LN_2PI, mask_missing, present_mask};
 
@@ -107,6 +115,10 @@ where
     mean: OVector<f64, M::State>,
     cov: OMatrix<f64, M::State, M::State>,
     innov: InnovationStore<M::Meas>,
+    /// Ensemble moments for the smoother, when recording.
+    record: Option<GaussianRecord<M::State>>,
+    /// The members before the last forecast (allocated only when recording).
+    before: OMatrix<f64, M::State, Dyn>,
 }
 
 impl<M: Model> EnsembleKalmanFilter<M>
@@ -138,6 +150,7 @@ where
         if count < 2 {
             return Err(bad("members", count.to_string(), "at least 2"));
         }
+        cloud::check_cloud_size(label, "members", count, n)?;
         if !(config.inflation.is_finite() && config.inflation >= 1.0) {
             return Err(bad(
                 "inflation",
@@ -170,6 +183,8 @@ where
             mean: prior.mean.clone(),
             cov: prior.cov.clone(),
             innov: InnovationStore::new(md),
+            record: None,
+            before: cloud::cloud_matrix(nd, 0),
             model,
         };
         cloud::scatter(
@@ -298,6 +313,10 @@ where
             }
             NoiseAt::Each => OMatrix::<f64, M::State, M::State>::zeros_generic(nd, nd),
         };
+        let filtered = self.record.is_some().then(|| {
+            self.before.copy_from(&self.members);
+            (self.mean.clone(), self.cov.clone())
+        });
         let how = Propagation {
             input: u,
             t,
@@ -328,7 +347,25 @@ where
             self.estimate()?;
             self.inflate();
         }
-        self.estimate()
+        self.estimate()?;
+        if let (Some(record), Some((mean, cov))) = (&mut self.record, filtered) {
+            // Sample Cov(x(k−1), x(k)) of the members before and after the forecast: the
+            // ensemble RTS cross-covariance (Raanes 2016), about the same sample means and with
+            // the same N − 1 denominator as the ensemble covariances.
+            let before_mean = self.model.state_mean(&self.before, &self.equal);
+            let after_mean = self.model.state_mean(&self.members, &self.equal);
+            let cross = cloud::cross_covariance(
+                &self.model,
+                (self.before.as_slice(), &before_mean),
+                (self.members.as_slice(), &after_mean),
+                1.0 / (self.config.members as f64 - 1.0),
+                &mut self.partials,
+                self.stride,
+            );
+            record.begin(&mean, &cov, cross);
+            record.complete(&self.mean, &self.cov);
+        }
+        Ok(())
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
@@ -479,6 +516,19 @@ where
         } else {
             0.0
         }
+    }
+
+    fn record_for_smoothing(&mut self) -> bool {
+        if self.record.is_none() {
+            self.record = Some(GaussianRecord::new(SmootherKind::EnsembleRts));
+            self.before = self.members.clone();
+        }
+        true
+    }
+
+    fn smooth(&self) -> Option<Result<SmoothedTrack, FilterError>> {
+        let record = self.record.as_ref()?;
+        Some(record.smooth(&self.model, &self.tag, &self.mean, &self.cov))
     }
 }
 

@@ -5,11 +5,14 @@ use nalgebra::{DefaultAllocator, Dim, OVector, U1};
 use sightline_core::NumericError;
 use thiserror::Error;
 
+use crate::smoother::SmoothedTrack;
+
 /// A recursive state estimator over `f64`, as the runner sees it.
 ///
 /// Object-safe so that filters of different kinds and plants of different sizes sit in one
 /// `Vec<Box<dyn Filter>>`. Vectors cross the trait as slices in model order; matrices as
-/// column-major slices. Nothing here allocates: the slices view the filter's own buffers.
+/// column-major slices. Nothing here allocates: the slices view the filter's own buffers
+/// (recording for a smoother, an offline analysis, is the exception: see [`crate::smoother`]).
 ///
 /// The time line of one dataset row `k` is: `predict(u(k-1), t(k-1), t(k) - t(k-1))` (skipped for
 /// the first row, whose prior is the model's), then `update(y(k), u(k), t(k))`. A NaN component of
@@ -40,6 +43,18 @@ pub trait Filter {
     /// Counters of opt-in remedies and internal events (gated updates, re-draws, iterations).
     fn diagnostics(&self) -> Diagnostics {
         Diagnostics::default()
+    }
+    /// Asks the filter to keep what its smoother needs from now on; call it before the first
+    /// step. Returns whether the filter supports smoothing (the default: it does not). Recording
+    /// allocates as the run grows, so it is for offline analysis; see [`crate::smoother`].
+    fn record_for_smoothing(&mut self) -> bool {
+        false
+    }
+    /// After the forward pass: the smoothed mean and covariance of every recorded epoch in step
+    /// order (see [`crate::smoother`] for what an epoch is), or `None` if the filter does not
+    /// support smoothing or was not asked to record.
+    fn smooth(&self) -> Option<Result<SmoothedTrack, FilterError>> {
+        None
     }
 }
 
@@ -97,6 +112,16 @@ pub enum FilterError {
         label: String,
         /// Step at which it collapsed.
         step: usize,
+    },
+    /// The smoother's backward pass failed (after a forward pass that succeeded).
+    #[error("smoother of filter '{label}' failed at step {step}: {reason}")]
+    Smoothing {
+        /// Filter label.
+        label: String,
+        /// Epoch (dataset row, with the runner's time line) at which the backward pass failed.
+        step: usize,
+        /// What went wrong and what would fix it.
+        reason: String,
     },
     /// A vector of the wrong length crossed the trait.
     #[error("filter '{label}': {what} has {got} values, the model expects {expected}")]

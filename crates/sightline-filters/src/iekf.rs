@@ -24,15 +24,16 @@
 //! step control, so on strongly nonlinear measurements the iterates may oscillate; the count
 //! bound keeps the cost fixed.
 
-use nalgebra::DefaultAllocator;
+use nalgebra::{DefaultAllocator, Dim};
 use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, ensure_finite};
 use sightline_core::{Alloc, Gaussian, Model};
 
-use crate::belief::{Belief, belief_accessors};
-use crate::filter::{Diagnostics, Filter, FilterError};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
+use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::mask_missing;
 
@@ -56,6 +57,9 @@ pub const INFO: KindInfo = KindInfo {
             default: "model",
             about: "model: the plant's hand-written Jacobian where it has one, else AD; ad: always AD",
         },
+        REPAIR,
+        FLOOR,
+        GATE,
     ],
     linear_only: false,
 };
@@ -70,7 +74,6 @@ where
     source: JacobianSource,
     max_iterations: usize,
     tolerance: f64,
-    iterations: u64,
 }
 
 impl<M: Model> Iekf<M>
@@ -92,7 +95,6 @@ where
             source: JacobianSource::Model,
             max_iterations: max_iterations.max(1),
             tolerance,
-            iterations: 0,
         }
     }
 
@@ -121,10 +123,10 @@ where
         "ad" => JacobianSource::Automatic,
         _ => JacobianSource::Model,
     };
-    Ok(Box::new(
-        Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol)
-            .with_jacobians(source),
-    ))
+    let mut iekf = Iekf::new(model.clone(), prior.clone(), &spec.label, iterations, tol)
+        .with_jacobians(source);
+    iekf.belief.remedies = Remedies::from_options(&opts, model.meas_dim().value())?;
+    Ok(Box::new(iekf))
 }
 
 impl<M: Model> Filter for Iekf<M>
@@ -138,6 +140,12 @@ where
         INFO.kind
     }
 
+    /// The RTS pass over the IEKF's filtered moments, the transition linearised at the
+    /// filtered mean as in the prediction.
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::Rts)
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         // The time update is the EKF's: x⁻ = f(x), P⁻ = F P Fᵀ + Q.
         let b = &mut self.belief;
@@ -145,6 +153,11 @@ where
         let u = b.input(u)?;
         let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
         let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
         b.mean = fx;
         b.cov = &f * &b.cov * f.transpose() + q;
         b.finish_predict()
@@ -193,14 +206,7 @@ where
             }
             point = next;
         };
-        self.iterations += done as u64;
+        b.diagnostics.iterations += done as u64;
         b.linear_update(&y, present, &predicted, h, &r, None)
-    }
-
-    fn diagnostics(&self) -> Diagnostics {
-        Diagnostics {
-            iterations: self.iterations,
-            ..Diagnostics::default()
-        }
     }
 }

@@ -7,27 +7,36 @@
 //! the plant's nominal step, and `gain=k1/k2/...` a user-given gain (the `n × m` entries
 //! row-major, separated by `/`) — the fixed-gain observer. For any gain the Joseph form
 //! propagates the *actual* error covariance of that gain, so NEES and NIS stay meaningful.
+//!
+//! Smoothing ([`crate::smoother`]): the optimal-gain filter records for the Rauch–Tung–Striebel
+//! smoother; the constant-gain modes decline, because their means are not conditional means.
 
 use nalgebra::{DefaultAllocator, Dim, OMatrix};
 use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 
 /// Registry entry.
 pub const INFO: KindInfo = KindInfo {
     kind: "kf",
     about: "linear Kalman filter (Joseph form); linear plants only",
-    options: &[OptionInfo {
-        key: "gain",
-        default: "optimal",
-        about: "optimal | steady (DARE gain at the nominal dt) | k1/k2/... fixed n×m gain, row-major",
-    }],
+    options: &[
+        OptionInfo {
+            key: "gain",
+            default: "optimal",
+            about: "optimal | steady (DARE gain at the nominal dt) | k1/k2/... fixed n×m gain, row-major",
+        },
+        REPAIR,
+        FLOOR,
+        GATE,
+    ],
     linear_only: true,
 };
 
@@ -163,9 +172,9 @@ where
             }
         }
     };
-    Ok(Box::new(
-        Kf::new(model.clone(), prior.clone(), &spec.label).with_gain(gain),
-    ))
+    let mut kf = Kf::new(model.clone(), prior.clone(), &spec.label).with_gain(gain);
+    kf.belief.remedies = Remedies::from_options(&opts, m)?;
+    Ok(Box::new(kf))
 }
 
 impl<M: Model> Filter for Kf<M>
@@ -179,12 +188,26 @@ where
         INFO.kind
     }
 
+    /// The RTS smoother needs the filtered moments to be the conditional ones; with a constant
+    /// gain the mean is not the conditional mean, so only the optimal-gain filter smooths.
+    fn record_for_smoothing(&mut self) -> bool {
+        match self.gain {
+            Gain::Optimal => self.belief.start_recording(SmootherKind::Rts),
+            Gain::Constant(_) => false,
+        }
+    }
+
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         let b = &mut self.belief;
         b.tag.step += 1;
         let u = b.input(u)?;
         let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, JacobianSource::Model);
         let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
         b.mean = fx;
         b.cov = &f * &b.cov * f.transpose() + q;
         b.finish_predict()

@@ -6,6 +6,12 @@
 //! Kalman filter ([`enkf`]) share the block-parallel, seed-split sample clouds that make their
 //! output independent of the thread count. With static plant sizes a predict+update step
 //! performs no heap allocation.
+//!
+//! Fixed-interval smoothers ([`smoother`]) sit behind the same trait: a filter asked to
+//! [`Filter::record_for_smoothing`] keeps its forward pass, and [`Filter::smooth`] runs the
+//! backward pass — Rauch–Tung–Striebel for the Gaussian filters (one generic pass, each filter
+//! supplying its cross-covariance) and backward simulation for the particle filter
+//! ([`particle_smoother`]).
 
 mod belief;
 mod cloud;
@@ -15,10 +21,12 @@ pub mod filter;
 pub mod iekf;
 pub mod kf;
 pub mod linearise;
+pub mod particle_smoother;
 pub mod pf;
 pub mod registry;
 pub mod resample;
 pub mod sigma_point;
+pub mod smoother;
 pub mod spec;
 pub mod srukf;
 mod update;
@@ -33,5 +41,6 @@ pub use linearise::JacobianSource;
 pub use pf::{ParticleFilter, PfConfig};
 pub use registry::{KINDS, KindInfo, build, default_kinds};
 pub use sigma_point::SigmaPointFilter;
+pub use smoother::{SmoothedTrack, SmootherKind};
 pub use spec::{FilterSpec, OptionInfo, Options, SpecError};
 pub use srukf::SquareRootUkf;

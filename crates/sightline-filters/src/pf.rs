@@ -43,6 +43,11 @@
 //! weighed again; if that also collapses the measurement is skipped (innovation `None`,
 //! log-likelihood increment 0). Each re-draw is counted in [`Diagnostics::redraws`].
 //!
+//! **Smoothing.** With [`Filter::record_for_smoothing`] the filter keeps its weighted cloud at
+//! every step and [`Filter::smooth`] runs forward filtering–backward simulation with
+//! `smoother_paths` trajectories (Godsill, Doucet & West, JASA 99(465), 2004); see
+//! [`crate::particle_smoother`] for the algorithm, its memory (N·(n+1) numbers per step) and cap.
+//!
 //! **Parallel and reproducible.** Propagation, weighting and every reduction run over blocks of
 //! 1024 particles with rayon; the random stream of each block is derived from (seed, step,
 //! block) and partial sums are combined in block order, so the output is bit-identical for any
@@ -61,8 +66,10 @@ use crate::cloud::{
     purpose, vector,
 };
 use crate::filter::{Diagnostics, Filter, FilterError, Innovation, Tag};
+use crate::particle_smoother::ParticleRecord;
 use crate::registry::KindInfo;
 use crate::resample::{Scheme, resample};
+use crate::smoother::SmoothedTrack;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{InnovationStore, LN_2PI, mask_missing, present_mask};
 
@@ -111,6 +118,11 @@ pub const INFO: KindInfo = KindInfo {
             default: "mean",
             about: "process noise Q at the cloud's mean | each particle",
         },
+        OptionInfo {
+            key: "smoother_paths",
+            default: "100",
+            about: "backward trajectories M of the particle smoother (FFBSi), when smoothing",
+        },
     ],
     linear_only: false,
 };
@@ -152,6 +164,8 @@ pub struct PfConfig {
     pub redraw: bool,
     /// Where Q is evaluated.
     pub noise: NoiseAt,
+    /// Backward trajectories drawn by the particle smoother (at least 2).
+    pub smoother_paths: usize,
 }
 
 impl Default for PfConfig {
@@ -164,6 +178,7 @@ impl Default for PfConfig {
             variant: Variant::Sir,
             redraw: false,
             noise: NoiseAt::Mean,
+            smoother_paths: 100,
         }
     }
 }
@@ -262,6 +277,8 @@ where
     log_likelihood: f64,
     ess: f64,
     diagnostics: Diagnostics,
+    /// The forward pass's clouds for the smoother, when recording.
+    record: Option<ParticleRecord<M::State>>,
 }
 
 impl<M: Model> ParticleFilter<M>
@@ -294,11 +311,19 @@ where
         if count < 2 {
             return Err(bad("particles", count.to_string(), "at least 2"));
         }
+        cloud::check_cloud_size(label, "particles", count, n)?;
         if !(0.0..=1.0).contains(&config.ess) {
             return Err(bad(
                 "ess",
                 config.ess.to_string(),
                 "a fraction of N from 0 to 1",
+            ));
+        }
+        if config.smoother_paths < 2 {
+            return Err(bad(
+                "smoother_paths",
+                config.smoother_paths.to_string(),
+                "at least 2",
             ));
         }
         if let Jitter::Roughening(k) = config.jitter {
@@ -352,6 +377,7 @@ where
             log_likelihood: 0.0,
             ess: count as f64,
             diagnostics: Diagnostics::default(),
+            record: None,
             model,
         };
         cloud::scatter(
@@ -991,6 +1017,7 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
         "each" => NoiseAt::Each,
         _ => NoiseAt::Mean,
     };
+    let smoother_paths = o.count("smoother_paths", defaults.smoother_paths, 2, 1_000_000)?;
     Ok(PfConfig {
         particles,
         scheme,
@@ -999,6 +1026,7 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
         variant,
         redraw,
         noise,
+        smoother_paths,
     })
 }
 
@@ -1039,6 +1067,14 @@ where
             let q = self.model.process_noise(&self.mean, &input, t, dt);
             self.q_factor =
                 lower_factor(&q, "process noise covariance Q").map_err(|e| self.tag.numeric(e))?;
+        }
+        if let Some(record) = &mut self.record {
+            record.push(
+                self.particles.as_slice(),
+                &self.weights,
+                (u, t, dt),
+                &self.q_factor,
+            );
         }
         let auxiliary = self.config.variant == Variant::Auxiliary;
         if auxiliary {
@@ -1120,6 +1156,27 @@ where
 
     fn diagnostics(&self) -> Diagnostics {
         self.diagnostics
+    }
+
+    fn record_for_smoothing(&mut self) -> bool {
+        if self.record.is_none() {
+            self.record = Some(ParticleRecord::new(
+                self.config.smoother_paths,
+                self.config.noise,
+            ));
+        }
+        true
+    }
+
+    fn smooth(&self) -> Option<Result<SmoothedTrack, FilterError>> {
+        let record = self.record.as_ref()?;
+        Some(record.smooth(
+            &self.model,
+            &self.tag,
+            self.seed,
+            self.particles.as_slice(),
+            &self.weights,
+        ))
     }
 }
 

@@ -7,14 +7,18 @@
 //! from (m⁻, P⁻) and propagated through h; S = Σ Wᶜᵢ eᵢeᵢᵀ + R, C = Σ Wᶜᵢ dᵢeᵢᵀ, and the Kalman
 //! update follows (Wan & van der Merwe, AS-SPCC 2000; Särkkä, *Bayesian Filtering and
 //! Smoothing*, 2013, Alg. 5.14). Point buffers are allocated once, at construction.
+//!
+//! Smoothing: every rule records the cross-covariance of its own prediction points for the
+//! sigma-point RTS smoother (Särkkä, IEEE TAC 53(3), 2008; see [`crate::smoother`]).
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use sightline_core::linalg::cholesky;
 use sightline_core::{Alloc, Gaussian, Model, SigmaRule};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::registry::KindInfo;
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{kalman_update, mask_missing};
 
@@ -38,6 +42,9 @@ pub const UKF: KindInfo = KindInfo {
             default: "0",
             about: "secondary scaling (3-n matches the Gaussian kurtosis)",
         },
+        REPAIR,
+        FLOOR,
+        GATE,
     ],
     linear_only: false,
 };
@@ -46,7 +53,7 @@ pub const UKF: KindInfo = KindInfo {
 pub const CKF: KindInfo = KindInfo {
     kind: "ckf",
     about: "cubature Kalman filter, third-degree spherical-radial rule (2n points)",
-    options: &[],
+    options: &[REPAIR, FLOOR, GATE],
     linear_only: false,
 };
 
@@ -54,11 +61,16 @@ pub const CKF: KindInfo = KindInfo {
 pub const GHKF: KindInfo = KindInfo {
     kind: "ghkf",
     about: "Gauss–Hermite Kalman filter, tensor-product rule of order p (p^n points)",
-    options: &[OptionInfo {
-        key: "order",
-        default: "3",
-        about: "points per axis; exact to degree 2p-1",
-    }],
+    options: &[
+        OptionInfo {
+            key: "order",
+            default: "3",
+            about: "points per axis; exact to degree 2p-1",
+        },
+        REPAIR,
+        FLOOR,
+        GATE,
+    ],
     linear_only: false,
 };
 
@@ -127,16 +139,17 @@ fn build_rule<M: Model>(
     spec: &FilterSpec,
     rule: SigmaRule,
     kind: &'static str,
+    remedies: Remedies,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
-    let f = SigmaPointFilter::new(model.clone(), prior.clone(), rule, kind, &spec.label).map_err(
-        |e| SpecError::NotApplicable {
+    let mut f = SigmaPointFilter::new(model.clone(), prior.clone(), rule, kind, &spec.label)
+        .map_err(|e| SpecError::NotApplicable {
             spec: spec.label.clone(),
             reason: e.to_string(),
-        },
-    )?;
+        })?;
+    f.belief.remedies = remedies;
     Ok(Box::new(f))
 }
 
@@ -151,7 +164,8 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
     let rule = unscented_rule(spec)?;
-    build_rule(model, prior, spec, rule, UKF.kind)
+    let remedies = Remedies::from_options(&spec.options(UKF.options)?, model.meas_dim().value())?;
+    build_rule(model, prior, spec, rule, UKF.kind, remedies)
 }
 
 /// The scaled unscented rule from a spec's `alpha`, `beta`, `kappa` (the options of
@@ -175,8 +189,8 @@ pub fn build_ckf<M: Model>(
 where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
-    spec.options(CKF.options)?;
-    build_rule(model, prior, spec, SigmaRule::Cubature, CKF.kind)
+    let remedies = Remedies::from_options(&spec.options(CKF.options)?, model.meas_dim().value())?;
+    build_rule(model, prior, spec, SigmaRule::Cubature, CKF.kind, remedies)
 }
 
 /// Builds a `ghkf` from a spec.
@@ -191,12 +205,14 @@ where
 {
     let o = spec.options(GHKF.options)?;
     let order = o.count("order", 3, 1, 20)?;
+    let remedies = Remedies::from_options(&o, model.meas_dim().value())?;
     build_rule(
         model,
         prior,
         spec,
         SigmaRule::GaussHermite { order },
         GHKF.kind,
+        remedies,
     )
 }
 
@@ -208,6 +224,10 @@ where
 
     fn kind(&self) -> &'static str {
         self.kind
+    }
+
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::SigmaPointRts)
     }
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
@@ -227,6 +247,19 @@ where
             let x: OVector<f64, M::State> = self.mapped.column(i).into_owned();
             let d = b.model.state_residual(&x, &mean);
             cov.ger(w, &d, &d, 1.0);
+        }
+        if b.recording() {
+            // Sigma-point cross-covariance D = Σ Wᶜᵢ (Xᵢ − m)(f(Xᵢ) − m⁻)ᵀ (Särkkä 2008).
+            let (n, _) = cov.shape_generic();
+            let mut cross = OMatrix::<f64, M::State, M::State>::zeros_generic(n, n);
+            for (i, &w) in self.wc.iter().enumerate() {
+                let x: OVector<f64, M::State> = self.points.column(i).into_owned();
+                let fx: OVector<f64, M::State> = self.mapped.column(i).into_owned();
+                let d = b.model.state_residual(&x, &b.mean);
+                let e = b.model.state_residual(&fx, &mean);
+                cross.ger(w, &d, &e, 1.0);
+            }
+            b.record_transition(cross);
         }
         b.mean = mean;
         b.cov = cov;
@@ -263,8 +296,16 @@ where
         mask_missing(&y, &mut residual, &mut s, Some(&mut cross));
         b.innov.residual = residual;
         b.innov.covariance = s;
-        kalman_update(&mut b.mean, &mut b.cov, &cross, &mut b.innov, present)
-            .map_err(|e| b.tag.numeric(e))?;
+        kalman_update(
+            &mut b.mean,
+            &mut b.cov,
+            &cross,
+            &mut b.innov,
+            present,
+            &b.remedies,
+            &mut b.diagnostics,
+        )
+        .map_err(|e| b.tag.numeric(e))?;
         b.check_posterior()
     }
 }

@@ -30,20 +30,32 @@
 //! their rows of the measurement stack are blanked and R's row and column become the identity's,
 //! so S_y is block-diagonal with an identity block and the gain has zero columns for them.
 //!
+//! Remedies (`repair`, `floor`, `gate`, shared with the other Gaussian filters): with
+//! `repair=on` a rank-one downdate that would lose positive-definiteness falls back to forming
+//! the full matrix, repairing it and factorising it afresh (counted as a repair), and a P
+//! repaired by the eigenvalue floor is refactorised; `gate` skips outlier updates as in the
+//! other filters.
+//!
 //! Mathematically the filter equals `ukf` with the same options. It keeps the covariance
 //! positive semi-definite by construction, and the factor's condition number is the square root
 //! of the covariance's, which is what makes square-root forms robust in finite precision.
+//!
+//! Smoothing: the prediction points and their images give the cross-covariance of the
+//! sigma-point RTS smoother (Särkkä, IEEE TAC 53(3), 2008); the backward pass works on the
+//! covariance P = S Sᵀ ([`crate::smoother`]).
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use sightline_core::linalg::{
-    cholesky_rank_one, ensure_finite, lower_triangular_factor, semidefinite_factor, symmetrise,
+    cholesky, cholesky_rank_one, ensure_finite, lower_triangular_factor, semidefinite_factor,
+    symmetrise,
 };
 use sightline_core::{Alloc, Gaussian, Model, NumericError, SigmaRule};
 
-use crate::belief::{Belief, belief_accessors};
+use crate::belief::{Belief, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
 use crate::registry::KindInfo;
 use crate::sigma_point::{UKF, unscented_rule};
+use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, SpecError};
 use crate::update::{LN_2PI, mask_missing};
 
@@ -147,6 +159,44 @@ where
         symmetrise(&mut self.belief.cov);
         self.factor = factor;
     }
+
+    /// After the belief's checks: if covariance repair changed P (`repaired` counted past
+    /// `before`), the factor is recomputed from the repaired P.
+    fn refactor_if_repaired(&mut self, before: u64) -> Result<(), FilterError> {
+        if self.belief.diagnostics.repaired == before {
+            return Ok(());
+        }
+        let chol = cholesky(&self.belief.cov, "repaired covariance")
+            .map_err(|e| self.belief.tag.numeric(e))?;
+        self.factor = chol.l();
+        Ok(())
+    }
+}
+
+/// The `repair=on` fallback of a rank-one downdate that lost positive-definiteness: the full
+/// matrix `p` (formed by the caller) is repaired and factorised afresh. Without repair the
+/// downdate's `failure` stands. Each fallback counts as one repair.
+fn refactor_repaired<D: Dim>(
+    remedies: &Remedies,
+    mut p: OMatrix<f64, D, D>,
+    failure: NumericError,
+    repaired: &mut u64,
+) -> Result<OMatrix<f64, D, D>, NumericError>
+where
+    DefaultAllocator: nalgebra::allocator::Allocator<D, D>,
+{
+    if remedies.floor.is_none() {
+        return Err(failure);
+    }
+    symmetrise(&mut p);
+    remedies.repair(&mut p);
+    *repaired += 1;
+    let quantity = match failure {
+        NumericError::NotPositiveDefinite { quantity } | NumericError::NonFinite { quantity } => {
+            quantity
+        }
+    };
+    cholesky(&p, quantity).map(|c| c.l())
 }
 
 /// Builds an `srukf` from a spec.
@@ -160,12 +210,10 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
 {
     let rule = unscented_rule(spec)?;
-    Ok(Box::new(SquareRootUkf::new(
-        model.clone(),
-        prior.clone(),
-        rule,
-        &spec.label,
-    )?))
+    let remedies = Remedies::from_options(&spec.options(INFO.options)?, model.meas_dim().value())?;
+    let mut filter = SquareRootUkf::new(model.clone(), prior.clone(), rule, &spec.label)?;
+    filter.belief.remedies = remedies;
+    Ok(Box::new(filter))
 }
 
 /// Blanks the components of a measurement deviation that are missing in `y`.
@@ -188,6 +236,10 @@ where
 
     fn kind(&self) -> &'static str {
         INFO.kind
+    }
+
+    fn record_for_smoothing(&mut self) -> bool {
+        self.belief.start_recording(SmootherKind::SigmaPointRts)
     }
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
@@ -221,6 +273,8 @@ where
         }
         ensure_finite(self.state_stack.iter(), "predicted sigma-point spread").map_err(numeric)?;
         let mut factor = lower_triangular_factor(&mut self.state_stack);
+        let stacked = factor.clone();
+        let mut failure = None;
         for i in 0..self.mapped.ncols() {
             let w = self.wc[i];
             if !self.by_rank_one(i) || w == 0.0 {
@@ -228,12 +282,47 @@ where
             }
             let x: OVector<f64, M::State> = self.mapped.column(i).into_owned();
             let mut d = b.model.state_residual(&x, &mean) * w.abs().sqrt();
-            cholesky_rank_one(&mut factor, &mut d, w < 0.0, "predicted covariance")
-                .map_err(numeric)?;
+            if let Err(e) = cholesky_rank_one(&mut factor, &mut d, w < 0.0, "predicted covariance")
+            {
+                failure = Some(e);
+                break;
+            }
+        }
+        let mut repaired = 0;
+        if let Some(failure) = failure {
+            // P⁻ in full: the stack's Gram matrix plus the rank-one terms.
+            let mut p = &stacked * stacked.transpose();
+            for i in 0..self.mapped.ncols() {
+                let w = self.wc[i];
+                if self.by_rank_one(i) && w != 0.0 {
+                    let x: OVector<f64, M::State> = self.mapped.column(i).into_owned();
+                    let d = b.model.state_residual(&x, &mean);
+                    p.ger(w, &d, &d, 1.0);
+                }
+            }
+            factor = refactor_repaired(&b.remedies, p, failure, &mut repaired).map_err(numeric)?;
+        }
+        self.belief.diagnostics.repaired += repaired;
+        if self.belief.recording() {
+            // Cross-covariance of the prediction points χᵢ = x̂ + S ξᵢ and Xᵢ = f(χᵢ), as for the
+            // ukf (Särkkä 2008); the centre weight may be negative, which a sum handles as is.
+            let b = &self.belief;
+            let (n, _) = self.factor.shape_generic();
+            let mut cross = OMatrix::<f64, M::State, M::State>::zeros_generic(n, n);
+            for (i, &w) in self.wc.iter().enumerate() {
+                let x: OVector<f64, M::State> = self.points.column(i).into_owned();
+                let fx: OVector<f64, M::State> = self.mapped.column(i).into_owned();
+                let d = b.model.state_residual(&x, &b.mean);
+                let e = b.model.state_residual(&fx, &mean);
+                cross.ger(w, &d, &e, 1.0);
+            }
+            self.belief.record_transition(cross);
         }
         self.belief.mean = mean;
         self.set_factor(factor);
-        self.belief.finish_predict()
+        let before = self.belief.diagnostics.repaired;
+        self.belief.finish_predict()?;
+        self.refactor_if_repaired(before)
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
@@ -277,14 +366,30 @@ where
         }
         ensure_finite(self.meas_stack.iter(), "innovation sigma-point spread").map_err(numeric)?;
         let mut sy = lower_triangular_factor(&mut self.meas_stack);
+        let stacked = sy.clone();
+        let mut failure = None;
         for i in 0..self.meas_points.ncols() {
             let w = self.wc[i];
             if !self.by_rank_one(i) || w == 0.0 {
                 continue;
             }
             let mut e = deviation(i) * w.abs().sqrt();
-            cholesky_rank_one(&mut sy, &mut e, w < 0.0, "innovation covariance")
-                .map_err(numeric)?;
+            if let Err(e) = cholesky_rank_one(&mut sy, &mut e, w < 0.0, "innovation covariance") {
+                failure = Some(e);
+                break;
+            }
+        }
+        let mut repaired = 0;
+        if let Some(failure) = failure {
+            let mut s_full = &stacked * stacked.transpose();
+            for i in 0..self.meas_points.ncols() {
+                let w = self.wc[i];
+                if self.by_rank_one(i) && w != 0.0 {
+                    let e = deviation(i);
+                    s_full.ger(w, &e, &e, 1.0);
+                }
+            }
+            sy = refactor_repaired(&b.remedies, s_full, failure, &mut repaired).map_err(numeric)?;
         }
         // Cross-covariance P_xy = Σ Wᶜᵢ (χᵢ − x̂⁻)(Yᵢ − ŷ)ᵀ (missing columns are zero).
         let (n, _) = self.factor.shape_generic();
@@ -304,14 +409,32 @@ where
         if !sy.solve_lower_triangular_mut(&mut w) || !sy.solve_lower_triangular_mut(&mut weighted) {
             return Err(numeric(singular));
         }
+        let nis = weighted.norm_squared();
+        if b.remedies.gates(nis, present) {
+            self.belief.diagnostics.repaired += repaired;
+            self.belief.diagnostics.gated += 1;
+            self.belief.innov.clear();
+            let before = self.belief.diagnostics.repaired;
+            self.belief.check_posterior()?;
+            return self.refactor_if_repaired(before);
+        }
         let mut factor = self.factor.clone();
+        let mut failure = None;
         for j in 0..w.nrows() {
             let mut column: OVector<f64, M::State> = w.row(j).transpose();
-            cholesky_rank_one(&mut factor, &mut column, true, "posterior covariance")
-                .map_err(numeric)?;
+            if let Err(e) =
+                cholesky_rank_one(&mut factor, &mut column, true, "posterior covariance")
+            {
+                failure = Some(e);
+                break;
+            }
+        }
+        if let Some(failure) = failure {
+            // P⁺ = P⁻ − K S_y S_yᵀ Kᵀ = S⁻S⁻ᵀ − WᵀW.
+            let p = &self.factor * self.factor.transpose() - w.transpose() * &w;
+            factor = refactor_repaired(&b.remedies, p, failure, &mut repaired).map_err(numeric)?;
         }
         let shift = w.transpose() * &weighted;
-        let nis = weighted.norm_squared();
         let ln_det: f64 = 2.0 * sy.diagonal().iter().map(|v| v.ln()).sum::<f64>();
         let innovation_cov = &sy * sy.transpose();
         self.belief.mean += shift;
@@ -322,6 +445,9 @@ where
         b.innov.present = present;
         b.innov.residual = residual;
         b.innov.covariance = innovation_cov;
-        b.check_posterior()
+        b.diagnostics.repaired += repaired;
+        let before = b.diagnostics.repaired;
+        b.check_posterior()?;
+        self.refactor_if_repaired(before)
     }
 }

@@ -11,6 +11,9 @@ use nalgebra::{DefaultAllocator, Dim, OMatrix, OVector};
 use sightline_core::NumericError;
 use sightline_core::linalg::{cholesky, ensure_finite, symmetrise};
 
+use crate::belief::Remedies;
+use crate::filter::Diagnostics;
+
 /// ln(2π).
 pub(crate) const LN_2PI: f64 = 1.837_877_066_409_345_5;
 
@@ -103,12 +106,18 @@ pub(crate) fn mask_missing<N: Dim, M: Dim>(
 /// Kalman update from a (masked) residual ν, innovation covariance S and cross-covariance C:
 /// x ← x + C S⁻¹ ν, P ← P − C S⁻¹ Cᵀ. Fills `store` with NIS and the log-likelihood
 /// increment −½(νᵀS⁻¹ν + ln det S + p ln 2π), p the number of present components.
+///
+/// With the [`Remedies`] on, S is repaired before it is factorised and an update whose NIS
+/// exceeds the gate is skipped (mean and covariance unchanged, `store` cleared); both are
+/// counted in `diagnostics`.
 pub(crate) fn kalman_update<N: Dim, M: Dim>(
     mean: &mut OVector<f64, N>,
     cov: &mut OMatrix<f64, N, N>,
     cross: &OMatrix<f64, N, M>,
     store: &mut InnovationStore<M>,
     present: usize,
+    remedies: &Remedies,
+    diagnostics: &mut Diagnostics,
 ) -> Result<(), NumericError>
 where
     DefaultAllocator: nalgebra::allocator::Allocator<N>
@@ -118,14 +127,23 @@ where
         + nalgebra::allocator::Allocator<N, M>
         + nalgebra::allocator::Allocator<M, N>,
 {
+    if remedies.repair(&mut store.covariance) {
+        diagnostics.repaired += 1;
+    }
     let chol = cholesky(&store.covariance, "innovation covariance")?;
+    let weighted = chol.solve(&store.residual);
+    let nis = store.residual.dot(&weighted);
+    if remedies.gates(nis, present) {
+        diagnostics.gated += 1;
+        store.clear();
+        return Ok(());
+    }
     // Kᵀ = S⁻¹ Cᵀ (S symmetric).
     let gain_t = chol.solve(&cross.transpose());
     *mean += gain_t.transpose() * &store.residual;
     *cov -= cross * &gain_t;
     symmetrise(cov);
-    let weighted = chol.solve(&store.residual);
-    store.nis = store.residual.dot(&weighted);
+    store.nis = nis;
     store.log_likelihood = -0.5 * (store.nis + chol.ln_determinant() + present as f64 * LN_2PI);
     store.present = present;
     ensure_finite(mean.iter(), "posterior mean")?;

@@ -3,6 +3,12 @@
 //!
 //! The library call is [`compare`]: it streams any [`RecordSource`] through the filters, writes
 //! the estimates as it goes and returns the summary and the plot series.
+//!
+//! With `--smooth` every filter that has a smoother records its forward pass and is smoothed
+//! after the last row (see [`crate::runner`]): the summary gains `smoothed_rmse_all`,
+//! `smoothed_rmse` (per state) and `smoother`, `DIR/smoothed.csv` holds the smoothed tracks in
+//! the layout of `estimates.csv`, and the report plots them. A smoothed run is held in memory;
+//! without `--smooth` the run streams.
 
 use std::fs::File;
 use std::io::{BufWriter, Write};
@@ -16,7 +22,9 @@ use crate::error::{Error, Result};
 use crate::output::OutputDir;
 use crate::plant::AnyPlant;
 use crate::report::{self, terminal_table};
-use crate::runner::{self, EstimatesWriter, NoObserver, Observer, RunConfig, RunOutcome, Series};
+use crate::runner::{
+    self, EstimatesWriter, NoObserver, Observer, RunConfig, RunOutcome, Series, Smoothing,
+};
 use crate::summary::{self, FilterSummary, StateMap, Status, Summary};
 use crate::verdict;
 
@@ -69,6 +77,45 @@ pub struct Comparison {
     pub series: Option<Series>,
     /// Notes for the report (e.g. about `--smooth`).
     pub notes: Vec<String>,
+    /// With `--smooth`: the time of every row and each filter's smoothed track (`None` for a
+    /// filter that has none), in spec order.
+    pub smoothed: Option<SmoothedRun>,
+}
+
+/// The smoothed tracks of a compared run.
+#[derive(Debug, Clone)]
+pub struct SmoothedRun {
+    /// Time of every row.
+    pub times: Vec<f64>,
+    /// Label and smoothed track of each filter, in spec order.
+    pub tracks: Vec<(String, Option<sightline_filters::SmoothedTrack>)>,
+}
+
+impl SmoothedRun {
+    /// Writes `smoothed.csv`: the columns of `estimates.csv`
+    /// (`filter,t,x.<state>...,sd.<state>...`) with the smoothed means and standard deviations,
+    /// one row per smoothed filter per step, in row order then filter order.
+    pub fn write_csv(&self, out: &mut dyn Write, states: &[String]) -> Result<()> {
+        let fail = |e: csv::Error| Error::Run(format!("writing smoothed.csv: {e}"));
+        let mut csv = csv::Writer::from_writer(out);
+        let mut header = vec!["filter".to_string(), "t".to_string()];
+        header.extend(states.iter().map(|s| format!("x.{s}")));
+        header.extend(states.iter().map(|s| format!("sd.{s}")));
+        csv.write_record(&header).map_err(fail)?;
+        for (k, t) in self.times.iter().enumerate() {
+            for (label, track) in &self.tracks {
+                let Some(track) = track else { continue };
+                let (Some(mean), Some(sd)) = (track.means.get(k), track.std_devs(k)) else {
+                    continue;
+                };
+                let mut row = vec![label.clone(), t.to_string()];
+                row.extend(mean.iter().chain(&sd).map(|v| v.to_string()));
+                csv.write_record(&row).map_err(fail)?;
+            }
+        }
+        csv.flush()
+            .map_err(|e| Error::Run(format!("writing smoothed.csv: {e}")))
+    }
 }
 
 impl Comparison {
@@ -120,7 +167,21 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
                 nis_in_band: keep(m.nis_in_band()),
                 log_likelihood: keep(Some(m.log_likelihood)),
                 seconds_per_step: m.seconds_per_step(),
-                smoothed_rmse_all: None,
+                smoothed_rmse_all: match &f.smoothing {
+                    Some(Smoothing::Done { rmse_all, .. }) => *rmse_all,
+                    _ => None,
+                },
+                smoothed_rmse: match &f.smoothing {
+                    Some(Smoothing::Done {
+                        rmse: Some(rmse), ..
+                    }) => Some(StateMap(states.iter().cloned().zip(rmse.clone()).collect())),
+                    _ => None,
+                },
+                smoother: f
+                    .smoothing
+                    .as_ref()
+                    .and_then(Smoothing::track)
+                    .map(|t| t.kind.name().to_string()),
                 anees_band: if ok {
                     m.anees_band().map(|b| b.to_array())
                 } else {
@@ -152,6 +213,7 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
         verdict,
         runs: None,
         pcrlb_rmse_all: None,
+        pcrlb_rmse: None,
     }
 }
 
@@ -183,6 +245,7 @@ pub fn compare(
     let config = RunConfig {
         seed: options.seed,
         series_points: options.series_points,
+        smooth: options.smooth,
         ..RunConfig::default()
     };
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
@@ -201,19 +264,60 @@ pub fn compare(
         }
     };
     let mut notes = Vec::new();
-    if options.smooth {
-        // The smoothers' seam: smoothed_rmse_all stays null until a smoother is registered.
-        notes.push(
-            "--smooth: no smoother is available in this build, so smoothed_rmse_all is null."
-                .to_string(),
-        );
-    }
+    let smoothed = options
+        .smooth
+        .then(|| smoothing_notes(&outcome, &mut notes));
     let summary = summarise(plant, &outcome);
     Ok(Comparison {
         summary,
         series: outcome.series,
         notes,
+        smoothed,
     })
+}
+
+/// Notes on what `--smooth` gave each filter, and the smoothed tracks.
+fn smoothing_notes(outcome: &RunOutcome, notes: &mut Vec<String>) -> SmoothedRun {
+    let mut tracks = Vec::new();
+    let mut unsupported = Vec::new();
+    for f in &outcome.filters {
+        let track = match &f.smoothing {
+            Some(Smoothing::Done { track, .. }) => Some(track.clone()),
+            Some(Smoothing::Unsupported) => {
+                unsupported.push(f.label.as_str());
+                None
+            }
+            Some(Smoothing::Failed(e)) => {
+                notes.push(format!("--smooth: {e}; its filtered results stand."));
+                None
+            }
+            None => None,
+        };
+        tracks.push((f.label.clone(), track));
+    }
+    if !unsupported.is_empty() {
+        notes.push(format!(
+            "--smooth: {} {} no smoother (a constant-gain kf does not give the conditional moments \
+             a smoother needs), so smoothed_rmse_all is null.",
+            unsupported.join(", "),
+            if unsupported.len() == 1 {
+                "has"
+            } else {
+                "have"
+            }
+        ));
+    }
+    if !outcome.truth && tracks.iter().any(|(_, t)| t.is_some()) {
+        notes.push(
+            "--smooth: the data carries no truth, so smoothed accuracy is not measured; the \
+             smoothed tracks are in smoothed.csv and the report."
+                .to_string(),
+        );
+    }
+    SmoothedRun {
+        times: outcome.times.clone(),
+        tracks,
+    }
 }
 
 /// Writes `estimates.csv` (through `write_estimates`), `summary.json` and `report.html` into a
@@ -240,6 +344,10 @@ pub fn compare_to_dir(
         source,
     })?;
     drop(buffered);
+    if let Some(smoothed) = &comparison.smoothed {
+        let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+        dir.write("smoothed.csv", |w| smoothed.write_csv(w, &states))?;
+    }
     let json = comparison.summary.to_json();
     dir.write("summary.json", |w| {
         w.write_all(json.as_bytes())
@@ -296,14 +404,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
     // Build once before reading so that a bad spec is reported before any work.
     runner::build_filters(plant.as_ref(), &specs, args.seed)?;
-    let set_inputs: Vec<String> = args
-        .plant
-        .set
-        .iter()
-        .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
-        .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
-        .collect();
-    let schema = Schema::of(plant.as_ref(), &set_inputs);
+    let schema = Schema::of(plant.as_ref(), &args.plant.set_input_names());
     let mut reader = DatasetReader::open(
         &args.data,
         &schema,
@@ -329,7 +430,14 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         &options,
         &args.output,
         &title,
-    )?;
+    )
+    .map_err(|e| match e {
+        Error::Interrupted(m) => Error::Interrupted(format!(
+            "{m}; nothing was written to {}",
+            args.output.display()
+        )),
+        other => other,
+    })?;
     print_result(&comparison.summary, &dir, &comparison.notes);
     match failures_error(&comparison.summary) {
         Some(e) => Err(e),

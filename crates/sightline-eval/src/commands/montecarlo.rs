@@ -2,11 +2,14 @@
 //! `DIR/partial.json` (the exact totals `merge` combines) and `DIR/report.html`.
 //!
 //! The library calls are [`crate::campaign::run_campaign`] and [`crate::campaign::summarise`];
-//! [`write_campaign`] writes a campaign's outputs.
+//! [`write_campaign`] writes a campaign's outputs. A campaign stopped early (Ctrl-C or a
+//! failed simulation) keeps its finished runs in `DIR.checkpoint/`; the same command resumes
+//! from it ([`crate::checkpoint`]).
 
 use std::path::{Path, PathBuf};
 
 use crate::campaign::{self, CampaignSpec, Shard, Totals};
+use crate::checkpoint::Checkpoint;
 use crate::cli::{PlantArgs, configure};
 use crate::error::{Error, Result};
 use crate::output::OutputDir;
@@ -206,7 +209,69 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
         Some(s) => s.range(spec.runs),
         None => 0..spec.runs,
     };
-    let totals = campaign::run_campaign(plant.as_ref(), &specs, &spec, range)?;
+    let fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
+    let mut checkpoint = Checkpoint::beside(&args.output);
+    let mut totals = match checkpoint.load(&fresh, &range)? {
+        Some(saved) => {
+            eprintln!(
+                "resuming from {}: {} of {} runs already done",
+                checkpoint.dir().display(),
+                saved.runs_covered(),
+                range.end - range.start
+            );
+            saved
+        }
+        None => fresh,
+    };
+    let todo = campaign::uncovered(&totals, range.clone());
+    let outcome = campaign::run_ranges(plant.as_ref(), &specs, &todo, &mut totals, &mut |t| {
+        checkpoint.save_if_due(t)
+    });
+    if let Err(e) = outcome {
+        return Err(stopped_early(
+            e,
+            &totals,
+            &mut checkpoint,
+            &range,
+            &args.output,
+        ));
+    }
     let (summary, dir) = write_campaign(&totals, &args.output)?;
+    checkpoint.remove();
     finish(&summary, &dir)
+}
+
+/// The error of a campaign that stopped early (Ctrl-C or a failure): the finished runs are
+/// saved in the checkpoint and the message says how to resume.
+fn stopped_early(
+    error: Error,
+    totals: &Totals,
+    checkpoint: &mut Checkpoint,
+    range: &std::ops::Range<u64>,
+    output: &Path,
+) -> Error {
+    let done = totals.runs_covered();
+    let total = range.end - range.start;
+    let kept = if done == 0 {
+        format!(
+            "no run had finished; nothing was written to {}",
+            output.display()
+        )
+    } else {
+        match checkpoint.save(totals) {
+            Ok(()) => format!(
+                "{done} of {total} runs finished and are kept in {}; run the same command again \
+                 to resume (nothing was written to {})",
+                checkpoint.dir().display(),
+                output.display()
+            ),
+            Err(e) => format!("the {done} finished runs could not be kept: {e}"),
+        }
+    };
+    match error {
+        // The row a run was stopped at says nothing useful about a campaign.
+        Error::Interrupted(_) => Error::Interrupted(format!("interrupted (Ctrl-C): {kept}")),
+        Error::Run(m) => Error::Run(format!("{m}; {kept}")),
+        other => other,
+    }
 }

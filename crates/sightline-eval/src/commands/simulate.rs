@@ -3,13 +3,15 @@
 use std::path::Path;
 
 use crate::cli::{PlantArgs, configure};
-use crate::dataset::write::write_csv;
-use crate::error::Result;
+use crate::dataset::Layout;
+use crate::dataset::write::CsvRecordWriter;
+use crate::error::{Error, Result};
 use crate::output::write_file;
 use crate::plant::AnyPlant;
 use crate::simulate::SimOptions;
 
-/// Runs `simulate`.
+/// Runs `simulate`: the rows stream into a temporary file beside `output`, renamed onto it only
+/// when the simulation is complete (an error or Ctrl-C leaves no partial file).
 #[allow(clippy::too_many_arguments)]
 pub fn run(
     plants: &[Box<dyn AnyPlant>],
@@ -22,16 +24,38 @@ pub fn run(
     output: &Path,
 ) -> Result<()> {
     let plant = configure(plants, args)?;
+    if steps == 0 {
+        return Err(Error::Usage(
+            "--steps must be at least 1 (a dataset needs at least one row)".into(),
+        ));
+    }
     let options = SimOptions {
         noise_free,
         every,
         dropout,
     };
-    let data = plant.simulate(steps, seed, &options)?;
-    write_file(output, |w| write_csv(&data, w))?;
+    let layout = Layout {
+        inputs: plant.inputs().into_iter().map(|v| v.name).collect(),
+        measurements: plant.measurements().into_iter().map(|v| v.name).collect(),
+        states: plant.states().into_iter().map(|v| v.name).collect(),
+    };
+    let mut rows = 0u64;
+    write_file(output, |w| {
+        let mut writer = CsvRecordWriter::new(w, &layout)?;
+        plant.simulate_each(steps, seed, &options, &mut |record| {
+            rows += 1;
+            writer.write(record)
+        })?;
+        writer.finish()
+    })
+    .map_err(|e| match e {
+        Error::Interrupted(m) => {
+            Error::Interrupted(format!("{m}; {} was not written", output.display()))
+        }
+        other => other,
+    })?;
     eprintln!(
-        "wrote {} rows of '{}' to {}",
-        data.records.len(),
+        "wrote {rows} rows of '{}' to {}",
         plant.name(),
         output.display()
     );

@@ -95,6 +95,35 @@ pub enum InputSource {
     Constant(f64),
 }
 
+/// `text` in single quotes for a message: control characters escaped (so junk never reaches
+/// the terminal raw) and long text cut to its first 40 characters.
+pub fn quoted(text: &str) -> String {
+    const SHOWN: usize = 40;
+    let mut out = String::from("'");
+    for (i, c) in text.chars().enumerate() {
+        if i == SHOWN {
+            out.push('…');
+            break;
+        }
+        if c.is_control() {
+            out.extend(c.escape_debug());
+        } else {
+            out.push(c);
+        }
+    }
+    out.push('\'');
+    out
+}
+
+/// A hint for a cell that runs over several lines: a quote opened in it was never closed.
+fn spans_lines(text: &str) -> &'static str {
+    if text.contains('\n') {
+        " (the cell spans lines: a '\"' opened in it is never closed)"
+    } else {
+        ""
+    }
+}
+
 fn list(prefix: &str, names: &[String]) -> String {
     if names.is_empty() {
         "(none)".into()
@@ -117,8 +146,34 @@ impl ColumnMap {
         let mut inputs = vec![None; schema.inputs.len()];
         let mut measurements = vec![None; schema.measurements.len()];
         let mut states = vec![None; schema.states.len()];
+        if let [only] = names.as_slice() {
+            if let Some(separator) = [';', '\t', '|'].into_iter().find(|c| only.contains(*c)) {
+                return Err(at(
+                    1,
+                    format!(
+                        "the header is a single column {}; expected comma-separated columns (the \
+                         file looks separated by {:?})",
+                        quoted(only),
+                        separator
+                    ),
+                ));
+            }
+        }
         for (field, name) in names.iter().enumerate() {
             let column = field + 1;
+            let shown = quoted(name);
+            if name.is_empty() {
+                return Err(at(
+                    column,
+                    format!(
+                        "header column {column} has no name (a stray comma?); expected 't', {}, \
+                         {} and optionally {}",
+                        list("u.", &schema.inputs),
+                        list("y.", &schema.measurements),
+                        list("x.", &schema.states)
+                    ),
+                ));
+            }
             let slot = if name == "t" {
                 &mut t
             } else if let Some(rest) = name.strip_prefix("u.") {
@@ -126,7 +181,7 @@ impl ColumnMap {
                     return Err(at(
                         column,
                         format!(
-                            "unknown input column '{name}'; model '{}' has inputs: {}",
+                            "unknown input column {shown}; model '{}' has inputs: {}",
                             schema.model,
                             list("u.", &schema.inputs)
                         ),
@@ -138,7 +193,7 @@ impl ColumnMap {
                     return Err(at(
                         column,
                         format!(
-                            "unknown measurement column '{name}'; model '{}' has measurements: {}",
+                            "unknown measurement column {shown}; model '{}' has measurements: {}",
                             schema.model,
                             list("y.", &schema.measurements)
                         ),
@@ -150,7 +205,7 @@ impl ColumnMap {
                     return Err(at(
                         column,
                         format!(
-                            "unknown state column '{name}'; model '{}' has states: {}",
+                            "unknown state column {shown}; model '{}' has states: {}",
                             schema.model,
                             list("x.", &schema.states)
                         ),
@@ -161,7 +216,7 @@ impl ColumnMap {
                 return Err(at(
                     column,
                     format!(
-                        "unexpected column '{name}'; expected 't', {}, {} and optionally {}",
+                        "unexpected column {shown}; expected 't', {}, {} and optionally {}",
                         list("u.", &schema.inputs),
                         list("y.", &schema.measurements),
                         list("x.", &schema.states)
@@ -171,7 +226,7 @@ impl ColumnMap {
             if let Some(first) = *slot {
                 return Err(at(
                     column,
-                    format!("column '{name}' appears twice (also column {})", first + 1),
+                    format!("column {shown} appears twice (also column {})", first + 1),
                 ));
             }
             *slot = Some(field);
@@ -325,6 +380,7 @@ pub struct DatasetReader {
     options: ReadOptions,
     checks: Vec<Box<dyn RowCheck>>,
     rows: u64,
+    header_line: u64,
 }
 
 impl std::fmt::Debug for DatasetReader {
@@ -368,7 +424,17 @@ impl DatasetReader {
             path: path.to_path_buf(),
             source,
         };
-        let buffered = skip_bom(input).map_err(read_err)?;
+        let mut buffered = skip_bom(input).map_err(read_err)?;
+        let start = buffered.fill_buf().map_err(read_err)?;
+        if start.starts_with(b"\xFF\xFE") || start.starts_with(b"\xFE\xFF") {
+            return Err(Error::data(
+                path,
+                1,
+                1,
+                "the file is UTF-16 text (it starts with a UTF-16 byte-order mark); expected \
+                 UTF-8: save it as UTF-8 CSV",
+            ));
+        }
         let boxed: Box<dyn Read> = Box::new(buffered);
         let mut csv = csv::ReaderBuilder::new()
             .has_headers(false)
@@ -384,8 +450,8 @@ impl DatasetReader {
                 path,
                 1,
                 1,
-                "the file is empty; expected a header row with 't', the y. columns and the u. \
-                 columns",
+                "the file has no header row (it is empty or blank); expected a header row with \
+                 't', the y. columns and the u. columns",
             ));
         }
         let line = header.position().map_or(1, |p| p.line());
@@ -401,6 +467,7 @@ impl DatasetReader {
             options,
             checks: vec![Box::new(StrictlyIncreasingTime::default())],
             rows: 0,
+            header_line: line,
         })
     }
 
@@ -437,6 +504,15 @@ impl DatasetReader {
             .read_record(&mut self.raw)
             .map_err(|e| csv_error(&self.path, e))?;
         if !got {
+            if self.rows == 0 {
+                return Err(Error::data(
+                    self.path.as_path(),
+                    self.header_line + 1,
+                    1,
+                    "the file has a header but no data rows; expected at least one row of \
+                     values below the header",
+                ));
+            }
             return Ok(false);
         }
         let line = self.raw.position().map_or(0, |p| p.line());
@@ -446,27 +522,31 @@ impl DatasetReader {
         let width = self.columns.names.len();
         if self.raw.len() != width {
             // A blank line inside the data reads as one empty field.
-            let message = if self.raw.len() == 1 && self.raw.get(0) == Some("") {
-                format!("empty row; expected {width} fields")
+            let (column, message) = if self.raw.len() == 1 && self.raw.get(0) == Some("") {
+                (1, format!("empty row; expected {width} fields"))
             } else {
-                format!(
-                    "row has {} fields but the header has {width}",
-                    self.raw.len()
+                (
+                    self.raw.len().min(width) + 1,
+                    format!(
+                        "row has {} fields but the header has {width}",
+                        self.raw.len()
+                    ),
                 )
             };
-            return Err(at(self.raw.len().min(width) + 1, message));
+            return Err(at(column, message));
         }
         let columns = &self.columns;
         let raw = &self.raw;
         let cell = |field: usize| raw.get(field).unwrap_or("");
         let number = |field: usize, what: &str| -> Result<f64> {
             let text = cell(field);
+            let shown = quoted(text);
             match text.parse::<f64>() {
                 Ok(v) if v.is_finite() => Ok(v),
                 Ok(_) => Err(at(
                     field + 1,
                     format!(
-                        "{what} '{}' is '{text}'; expected a finite number",
+                        "{what} '{}' is {shown}; expected a finite number",
                         columns.names[field]
                     ),
                 )),
@@ -480,8 +560,9 @@ impl DatasetReader {
                 Err(_) => Err(at(
                     field + 1,
                     format!(
-                        "{what} '{}' is '{text}'; expected a number",
-                        columns.names[field]
+                        "{what} '{}' is {shown}; expected a number{}",
+                        columns.names[field],
+                        spans_lines(text)
                     ),
                 )),
             }
@@ -497,6 +578,7 @@ impl DatasetReader {
         record.y.clear();
         for &field in &columns.measurements {
             let text = cell(field);
+            let shown = quoted(text);
             let value = if text.is_empty() {
                 f64::NAN
             } else {
@@ -507,7 +589,7 @@ impl DatasetReader {
                         return Err(at(
                             field + 1,
                             format!(
-                                "measurement '{}' is '{text}'; expected a finite number or an \
+                                "measurement '{}' is {shown}; expected a finite number or an \
                                  empty cell for a missing value (or pass --nonfinite-as-missing)",
                                 columns.names[field]
                             ),
@@ -517,8 +599,10 @@ impl DatasetReader {
                         return Err(at(
                             field + 1,
                             format!(
-                                "measurement '{}' is '{text}'; expected a number or an empty cell",
-                                columns.names[field]
+                                "measurement '{}' is {shown}; expected a number or an empty \
+                                 cell{}",
+                                columns.names[field],
+                                spans_lines(text)
                             ),
                         ));
                     }
@@ -579,7 +663,7 @@ fn csv_error(path: &Path, e: csv::Error) -> Error {
             path,
             line,
             (err.field() + 1) as u64,
-            "the cell is not valid UTF-8 text",
+            "the cell is not valid UTF-8 text; expected a UTF-8 file (save it as UTF-8 CSV)",
         ),
         other => Error::data(path, line, column, format!("malformed CSV: {other:?}")),
     }

@@ -24,25 +24,58 @@ fn cell(v: f64) -> String {
     }
 }
 
-/// Writes a whole dataset as CSV.
-pub fn write_csv(data: &Dataset, out: &mut dyn Write) -> Result<()> {
-    let mut w = csv::Writer::from_writer(out);
-    let run = |e: csv::Error| Error::Run(format!("writing CSV: {e}"));
-    w.write_record(header(&data.layout)).map_err(run)?;
-    let with_truth = !data.layout.states.is_empty();
-    for Record { t, u, y, x } in &data.records {
-        let mut row = Vec::with_capacity(1 + u.len() + y.len() + x.as_ref().map_or(0, |x| x.len()));
-        row.push(cell(*t));
-        row.extend(u.iter().map(|v| cell(*v)));
-        row.extend(y.iter().map(|v| cell(*v)));
-        if with_truth {
+/// Writes a dataset row by row (the simulator streams into it, so a long simulation never holds
+/// its rows in memory): the header on creation, then one [`Record`] per call.
+pub struct CsvRecordWriter<'a> {
+    csv: csv::Writer<&'a mut dyn Write>,
+    with_truth: bool,
+    row: Vec<String>,
+}
+
+fn csv_err(e: csv::Error) -> Error {
+    Error::Run(format!("writing CSV: {e}"))
+}
+
+impl<'a> CsvRecordWriter<'a> {
+    /// Starts a file with the header of `layout`.
+    pub fn new(out: &'a mut dyn Write, layout: &Layout) -> Result<Self> {
+        let mut csv = csv::Writer::from_writer(out);
+        csv.write_record(header(layout)).map_err(csv_err)?;
+        Ok(CsvRecordWriter {
+            csv,
+            with_truth: !layout.states.is_empty(),
+            row: Vec::new(),
+        })
+    }
+
+    /// Writes one row.
+    pub fn write(&mut self, record: &Record) -> Result<()> {
+        let Record { t, u, y, x } = record;
+        self.row.clear();
+        self.row.push(cell(*t));
+        self.row.extend(u.iter().map(|v| cell(*v)));
+        self.row.extend(y.iter().map(|v| cell(*v)));
+        if self.with_truth {
             if let Some(x) = x {
-                row.extend(x.iter().map(|v| cell(*v)));
+                self.row.extend(x.iter().map(|v| cell(*v)));
             }
         }
-        w.write_record(&row).map_err(run)?;
+        self.csv.write_record(&self.row).map_err(csv_err)
     }
-    w.flush()
-        .map_err(|e| Error::Run(format!("writing CSV: {e}")))?;
-    Ok(())
+
+    /// Flushes the rows written.
+    pub fn finish(mut self) -> Result<()> {
+        self.csv
+            .flush()
+            .map_err(|e| Error::Run(format!("writing CSV: {e}")))
+    }
+}
+
+/// Writes a whole dataset as CSV.
+pub fn write_csv(data: &Dataset, out: &mut dyn Write) -> Result<()> {
+    let mut w = CsvRecordWriter::new(out, &data.layout)?;
+    for record in &data.records {
+        w.write(record)?;
+    }
+    w.finish()
 }
