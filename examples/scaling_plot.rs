@@ -6,7 +6,8 @@
 //! ```
 //!
 //! Writes `scaling_steps.svg`, `scaling_particles.svg`, `scaling_dimension.svg`, every point in
-//! `scaling.csv` (`curve,x,seconds`) and the fitted slopes in `scaling.json`, and prints them.
+//! `scaling.csv` (`curve,x,seconds`) and the fitted slopes and interleaved ratios in
+//! `scaling.json`, and prints them.
 //! About a minute on 2 cores.
 //!
 //! - **Steps**: wall time of K consecutive predict + update steps on `pendulum`,
@@ -17,6 +18,12 @@
 //!   n = 4 … 256; the Cholesky factorisations and covariance products are O(n³), so the slope
 //!   tends to 3 once they dominate the O(n²) work (sigma points or Jacobian columns, each an O(n)
 //!   model evaluation). Slopes are fitted over n = 8 … 64 (the benchmark range) and n = 64 … 256.
+//!
+//! - **Interleaved ratios**: the goals that compare two costs are also measured by alternating
+//!   the two sides step by step (or block by block), so that both see the same load on a shared
+//!   machine: the PF step against its bare arithmetic (`benches/support/bare_arithmetic.rs`) at
+//!   N = 10⁵ and 10⁶, the PF on 2 threads against 1, and the EKF with AD against hand-written
+//!   Jacobians on `pendulum` and `quadtank`. Each is the ratio of the two medians.
 //!
 //! Timings exclude building the filter. Each per-step figure is the median over a run of steps,
 //! which shrugs off a few steps disturbed by other load on the machine.
@@ -29,7 +36,13 @@ use std::time::{Duration, Instant};
 use plotters::prelude::*;
 use sightline::eval::dataset::Record;
 use sightline::eval::simulate::SimOptions;
-use sightline::{AnyPlant, FilterSpec, shipped};
+use sightline::filters::{Filter, ParticleFilter, PfConfig};
+use sightline::models::Pendulum;
+use sightline::{AnyPlant, FilterSpec, Model, shipped};
+
+#[path = "../benches/support/bare_arithmetic.rs"]
+mod bare_arithmetic;
+use bare_arithmetic::BareCloud;
 
 /// One measured curve: points (x, seconds) and a label.
 struct Curve {
@@ -192,6 +205,102 @@ fn dimension_curves() -> Result<Vec<Curve>, Box<dyn Error>> {
     Ok(curves)
 }
 
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+fn pendulum_pf(particles: usize, first: &Record) -> Result<ParticleFilter<Pendulum>, String> {
+    let model = Pendulum::default();
+    let prior = model.prior();
+    let config = PfConfig {
+        particles,
+        ..PfConfig::default()
+    };
+    let mut pf = ParticleFilter::new(model, prior, config, "pf", 3).map_err(|e| e.to_string())?;
+    pf.update(&first.y, &first.u, first.t)
+        .map_err(|e| e.to_string())?;
+    Ok(pf)
+}
+
+fn pf_step(pf: &mut ParticleFilter<Pendulum>, prev: &Record, r: &Record) -> Result<f64, String> {
+    let start = Instant::now();
+    pf.predict(&prev.u, prev.t, r.t - prev.t)
+        .map_err(|e| e.to_string())?;
+    pf.update(&r.y, &r.u, r.t).map_err(|e| e.to_string())?;
+    Ok(start.elapsed().as_secs_f64())
+}
+
+/// The ratios of the goals, each side alternated with the other.
+fn interleaved() -> Result<serde_json::Value, Box<dyn Error>> {
+    let pendulum = plant("pendulum", &[])?;
+    let data = pendulum.simulate(2_000, 1, &SimOptions::default())?;
+    let rows = &data.records;
+    let one = rayon::ThreadPoolBuilder::new().num_threads(1).build()?;
+    let two = rayon::ThreadPoolBuilder::new().num_threads(2).build()?;
+    let mut out = serde_json::Map::new();
+    for (count, pairs) in [(100_000usize, 40usize), (1_000_000, 10)] {
+        let mut pf1 = one.install(|| pendulum_pf(count, &rows[0]))?;
+        let mut pf2 = two.install(|| pendulum_pf(count, &rows[0]))?;
+        let mut bare = BareCloud::new(count);
+        // Two alternations: PF on one thread against the bare loop, then PF on one thread
+        // against PF on two (so that idle workers of the two-thread pool never overlap the
+        // bare loop).
+        let (mut t1, mut tb) = (Vec::new(), Vec::new());
+        for k in 1..=pairs {
+            let (prev, r) = (&rows[k - 1], &rows[k]);
+            t1.push(one.install(|| pf_step(&mut pf1, prev, r))?);
+            let start = Instant::now();
+            std::hint::black_box(bare.sweep(prev, r, k as u64));
+            tb.push(start.elapsed().as_secs_f64());
+        }
+        let mut pf1 = one.install(|| pendulum_pf(count, &rows[0]))?;
+        let (mut t1b, mut t2) = (Vec::new(), Vec::new());
+        for k in 1..=pairs {
+            let (prev, r) = (&rows[k - 1], &rows[k]);
+            t1b.push(one.install(|| pf_step(&mut pf1, prev, r))?);
+            t2.push(two.install(|| pf_step(&mut pf2, prev, r))?);
+        }
+        let (m1, mb) = (median(t1), median(tb));
+        let (m1b, m2) = (median(t1b), median(t2));
+        println!(
+            "interleaved pf N={count}: 1 thread {m1:.3e} s against bare {mb:.3e} s \
+             (pf/bare {:.2}); 1 thread {m1b:.3e} s against 2 threads {m2:.3e} s (speed-up {:.2})",
+            m1 / mb,
+            m1b / m2
+        );
+        out.insert(
+            format!("pf_{count}"),
+            serde_json::json!({
+                "one_thread_seconds": m1, "bare_seconds": mb, "pf_over_bare": m1 / mb,
+                "one_thread_seconds_against_two": m1b, "two_threads_seconds": m2,
+                "speed_up_two_threads": m1b / m2,
+            }),
+        );
+    }
+    for name in ["pendulum", "quadtank"] {
+        let p = plant(name, &[])?;
+        let data = p.simulate(201, 1, &SimOptions::default())?;
+        let (mut hand, mut ad) = (Vec::new(), Vec::new());
+        for _ in 0..40 {
+            hand.push(run(p.as_ref(), "ekf", &data.records, |_| true)?.as_secs_f64());
+            ad.push(run(p.as_ref(), "ekf:jacobian=ad", &data.records, |_| true)?.as_secs_f64());
+        }
+        let (mh, ma) = (median(hand) / 200.0, median(ad) / 200.0);
+        println!(
+            "interleaved ekf {name}: hand-written {mh:.3e} s, ad {ma:.3e} s (ad/hand {:.2})",
+            ma / mh
+        );
+        out.insert(
+            format!("ekf_{name}"),
+            serde_json::json!({
+                "hand_written_seconds": mh, "ad_seconds": ma, "ad_over_hand": ma / mh,
+            }),
+        );
+    }
+    Ok(serde_json::Value::Object(out))
+}
+
 /// Draws curves on log-log axes into an SVG file, with a dashed grey reference line of slope
 /// `reference` through the first curve's last point.
 fn plot(
@@ -301,6 +410,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         json.insert(group.to_string(), serde_json::Value::Object(fits));
     };
 
+    let ratios = interleaved()?;
     let mut steps = steps_curves()?;
     record("steps", &mut steps, &[("1e2..1e5", 1e2, 1e5)]);
     let mut particles = particle_curves()?;
@@ -336,6 +446,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         &dimension,
         3.0,
     )?;
+    json.insert("interleaved".into(), ratios);
     std::fs::write(out.join("scaling.csv"), csv)?;
     std::fs::write(
         out.join("scaling.json"),
