@@ -56,6 +56,7 @@
 //! performs no heap allocation.
 
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
+use rand::RngExt;
 use rayon::prelude::*;
 use sightline_core::linalg::{cholesky, ensure_finite};
 use sightline_core::rng::stream;
@@ -68,7 +69,7 @@ use crate::cloud::{
 use crate::filter::{Diagnostics, Filter, FilterError, Innovation, Tag};
 use crate::particle_smoother::ParticleRecord;
 use crate::registry::KindInfo;
-use crate::resample::{Scheme, resample};
+use crate::resample::{Scheme, resample, systematic_in_blocks};
 use crate::smoother::SmoothedTrack;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{InnovationStore, LN_2PI, mask_missing, present_mask};
@@ -707,12 +708,28 @@ where
     fn resample(&mut self) -> Result<(), FilterError> {
         let step = self.tag.step as u64;
         let mut rng = stream(self.seed, &[purpose::RESAMPLE, step]);
-        resample(
-            self.config.scheme,
-            &self.weights,
-            &mut rng,
-            &mut self.ancestors,
-        );
+        // Systematic (the default) runs in parallel blocks; `scratch` is free after the weighting
+        // pass, and the first slots of `partials` hold the block totals.
+        let in_blocks = self.config.scheme == Scheme::Systematic && {
+            let shift: f64 = rng.clone().random();
+            systematic_in_blocks(
+                &self.weights,
+                shift,
+                BLOCK,
+                min_blocks_per_job(),
+                &mut self.scratch,
+                &mut self.partials,
+                &mut self.ancestors,
+            )
+        };
+        if !in_blocks {
+            resample(
+                self.config.scheme,
+                &self.weights,
+                &mut rng,
+                &mut self.ancestors,
+            );
+        }
         let n = self.model.state_dim().value();
         let source = self.particles.as_slice();
         let ancestors = &self.ancestors;

@@ -29,6 +29,7 @@
 
 use rand::RngExt;
 use rand_distr::Exp1;
+use rayon::prelude::*;
 use sightline_core::rng::Stream;
 
 /// A resampling scheme.
@@ -138,6 +139,112 @@ pub fn resample(scheme: Scheme, weights: &[f64], rng: &mut Stream, ancestors: &m
 }
 
 /// Multinomial draw: `ancestors.len()` sorted uniforms assigned by one walk over the weights.
+/// Systematic resampling (one uniform `shift` in [0, 1), positions (k + shift)/N) computed in
+/// fixed blocks of `block` weights, in parallel, with the same draw for any number of threads.
+///
+/// The cumulative weight of particle j is taken as `offset(b) + s(j)`: the exclusive prefix of
+/// the block totals before j's block b plus the running sum within the block. Both are fixed by
+/// the block layout alone, so the ancestors do not depend on how rayon splits the work. Ancestor
+/// k is the first j whose cumulative weight exceeds (k + shift)/N of the total, never past the
+/// last positive weight, exactly as in the sequential walk of [`resample`] (only the rounding of
+/// the cumulative sums differs). Each block of ancestors finds its first index by bisection and
+/// walks forwards from there, so the work stays O(N) in total and the walk runs in parallel.
+///
+/// `within` (length `weights.len()`) and `offsets` (at least one value per block) are scratch
+/// buffers; nothing is allocated. `min_len` is the least number of blocks per rayon job. Returns
+/// `false`, leaving `ancestors` unspecified, when the weights are unusable (a negative or
+/// non-finite weight, or a zero total): the caller falls back to [`resample`].
+///
+/// ```
+/// use sightline_filters::resample::systematic_in_blocks;
+/// let weights = [0.5, 0.0, 0.25, 0.25];
+/// let (mut within, mut offsets, mut ancestors) = ([0.0; 4], [0.0; 2], [0usize; 8]);
+/// assert!(systematic_in_blocks(&weights, 0.3, 2, 1, &mut within, &mut offsets, &mut ancestors));
+/// assert_eq!(ancestors, [0, 0, 0, 0, 2, 2, 3, 3]);
+/// ```
+pub fn systematic_in_blocks(
+    weights: &[f64],
+    shift: f64,
+    block: usize,
+    min_len: usize,
+    within: &mut [f64],
+    offsets: &mut [f64],
+    ancestors: &mut [usize],
+) -> bool {
+    let block = block.max(1);
+    let blocks = weights.len().div_ceil(block);
+    if weights.is_empty() || ancestors.is_empty() || within.len() < weights.len() {
+        return false;
+    }
+    let Some(offsets) = offsets.get_mut(..blocks) else {
+        return false;
+    };
+    // Running sums within each block; a block with a negative or non-finite weight totals NaN.
+    (
+        weights.par_chunks(block),
+        within.par_chunks_mut(block),
+        offsets.par_iter_mut(),
+    )
+        .into_par_iter()
+        .with_min_len(min_len)
+        .for_each(|(w, s, total)| {
+            let mut sum = 0.0;
+            let mut valid = true;
+            for (&wi, si) in w.iter().zip(s.iter_mut()) {
+                valid &= wi >= 0.0 && wi.is_finite();
+                sum += wi;
+                *si = sum;
+            }
+            *total = if valid { sum } else { f64::NAN };
+        });
+    // Block totals into exclusive prefixes (a handful of values: sequential).
+    let mut total = 0.0;
+    for offset in offsets.iter_mut() {
+        let sum = *offset;
+        *offset = total;
+        total += sum;
+    }
+    if !(total.is_finite() && total > 0.0) {
+        return false;
+    }
+    let Some(last) = weights.iter().rposition(|&w| w > 0.0) else {
+        return false;
+    };
+    let offsets = &*offsets;
+    let within = &*within;
+    let cumulative = |j: usize| offsets[j / block] + within[j];
+    let n = ancestors.len();
+    let scale = total / n as f64;
+    let position = |k: usize| (k as f64 + shift) * scale;
+    ancestors
+        .par_chunks_mut(block)
+        .enumerate()
+        .with_min_len(min_len)
+        .for_each(|(b, chunk)| {
+            let k0 = b * block;
+            // First j with cumulative(j) > position(k0): bisection over the monotone sums.
+            let u0 = position(k0);
+            let (mut lo, mut hi) = (0, last);
+            while lo < hi {
+                let mid = lo + (hi - lo) / 2;
+                if cumulative(mid) <= u0 {
+                    lo = mid + 1;
+                } else {
+                    hi = mid;
+                }
+            }
+            let mut j = lo;
+            for (k, a) in chunk.iter_mut().enumerate() {
+                let u = position(k0 + k);
+                while j < last && cumulative(j) <= u {
+                    j += 1;
+                }
+                *a = j;
+            }
+        });
+    true
+}
+
 fn sorted_uniforms_walk(weights: &[f64], total: f64, rng: &mut Stream, ancestors: &mut [usize]) {
     sorted_uniforms_walk_by(weights.len(), |i| weights[i], total, rng, ancestors);
 }
@@ -306,6 +413,60 @@ mod tests {
                 let count = ancestors.iter().filter(|&&a| a == i).count();
                 assert!(count >= (n as f64 * w).floor() as usize);
             }
+        }
+    }
+
+    #[test]
+    fn blocked_systematic_equals_the_sequential_walk() {
+        // Dyadic weights (multiples of 2⁻¹⁰) sum exactly in any order, so the blocked and the
+        // sequential cumulative sums agree bit for bit and so must the ancestors, for any block
+        // size (the block layout is the only thing a thread count could change).
+        let mut rng = stream(77, &[]);
+        for len in [1usize, 7, 64, 1000, 4099] {
+            let mut weights: Vec<f64> = (0..len)
+                .map(|_| f64::from(rng.random_range(0u32..8)) / 1024.0)
+                .collect();
+            weights[len / 2] += 1.0 / 1024.0;
+            for count in [1usize, 5, len, 3 * len + 1] {
+                let mut expected = vec![0; count];
+                let mut draw = rng.clone();
+                let shift: f64 = draw.clone().random();
+                resample(Scheme::Systematic, &weights, &mut draw, &mut expected);
+                for block in [1usize, 3, 64, 1024, 10_000] {
+                    let mut within = vec![0.0; len];
+                    let mut offsets = vec![0.0; len.div_ceil(block)];
+                    let mut ancestors = vec![usize::MAX; count];
+                    assert!(systematic_in_blocks(
+                        &weights,
+                        shift,
+                        block,
+                        1,
+                        &mut within,
+                        &mut offsets,
+                        &mut ancestors
+                    ));
+                    assert_eq!(ancestors, expected, "len {len}, N {count}, block {block}");
+                }
+                let _: f64 = rng.random();
+            }
+        }
+        // Unusable weights are refused, not drawn from.
+        let (mut within, mut offsets, mut ancestors) = ([0.0; 3], [0.0; 3], [0usize; 4]);
+        for bad in [
+            [1.0, -0.5, 1.0],
+            [0.0; 3],
+            [1.0, f64::NAN, 1.0],
+            [1.0, f64::INFINITY, 0.0],
+        ] {
+            assert!(!systematic_in_blocks(
+                &bad,
+                0.5,
+                1,
+                1,
+                &mut within,
+                &mut offsets,
+                &mut ancestors
+            ));
         }
     }
 
