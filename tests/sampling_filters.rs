@@ -251,6 +251,7 @@ fn output_is_identical_for_any_thread_count_and_reproducible_from_the_seed() {
     // reproducible parallel Monte Carlo). 5,000 particles = 5 blocks, the last one partial.
     let cases = [
         ("cv", "pf:particles=5000,roughening=0.2"),
+        ("cv", "pf:particles=5000,temper=0.9"),
         (
             "cv",
             "pf:particles=5000,ess=1,resample=multinomial,regularise=on",
@@ -433,4 +434,65 @@ fn missing_components_are_skipped_exactly() {
         assert!(gap <= tol, "{spec}: gap {gap}");
         assert!((t.log_likelihood - kf.log_likelihood).abs() < 1.5, "{spec}");
     }
+}
+
+#[test]
+fn tempering_keeps_a_sharp_first_update_from_collapsing_the_cloud() {
+    // A prior 200 times wider than the measurement noise: the bootstrap weights of the first
+    // update fall on a few particles (ESS/N ≈ √2·σ_r/σ₀ ≈ 0.7 %, the weight degeneracy of
+    // Bengtsson, Bickel & Li 2008 — from memory), so the estimate comes from ~14 points. The
+    // tempered update (progressive correction, Musso, Oudjane & Le Gland 2001) keeps a usable
+    // sample. Reference: the KF's exact posterior after the same update (Kalman 1960).
+    let plants = shipped();
+    let args = sightline::cli::PlantArgs {
+        model: "cv".into(),
+        set: vec!["sd0.pos=100".into()],
+    };
+    let cv = sightline::cli::configure(&plants, &args).unwrap();
+    let data = cv.simulate(1, 5, &SimOptions::default()).unwrap();
+    let kf = run(cv.as_ref(), &data, "kf", 0).unwrap();
+    let sd = |t: &Trace, j: usize| t.covariances[0][j * 2 + j].sqrt();
+    let seeds = 0..40u64;
+    let summary = |spec: &str| {
+        let (mut gap, mut ratio) = (0.0, [0.0; 2]);
+        let mut stages = 0;
+        for seed in seeds.clone() {
+            let mut filter = cv
+                .build_filter(&FilterSpec::parse(spec).unwrap(), seed)
+                .unwrap();
+            let t = run_filter(filter.as_mut(), &data).unwrap();
+            stages += filter.diagnostics().tempered;
+            gap += ((t.means[0][0] - kf.means[0][0]) / sd(&kf, 0)).powi(2);
+            for (j, r) in ratio.iter_mut().enumerate() {
+                *r += sd(&t, j) / sd(&kf, j);
+            }
+        }
+        let count = seeds.clone().count() as f64;
+        let gap = (gap / count).sqrt();
+        let ratio = ratio.map(|r| r / count);
+        eprintln!("{spec}: RMS gap {gap:.3} sd, sd ratios {ratio:?}, tempered stages {stages}");
+        (gap, ratio, stages)
+    };
+    let (plain_gap, plain_ratio, plain_stages) = summary("pf:particles=2000");
+    let (gap, ratio, stages) = summary("pf:particles=2000,temper=0.3");
+    assert_eq!(plain_stages, 0);
+    assert!(
+        stages >= 40,
+        "every run should split the update: {stages} extra stages"
+    );
+    assert!(
+        gap < 0.1 && gap < plain_gap / 2.0,
+        "tempered {gap} vs plain {plain_gap}"
+    );
+    assert!(
+        (ratio[0] - 1.0).abs() < 0.1,
+        "tempered position sd ratio {}",
+        ratio[0]
+    );
+    assert!(
+        (ratio[1] - 1.0).abs() < 0.1,
+        "tempered velocity sd ratio {}",
+        ratio[1]
+    );
+    assert!(plain_ratio[0] < ratio[0], "{plain_ratio:?} vs {ratio:?}");
 }

@@ -4,10 +4,11 @@
     python3 benches/baseline/compare.py [--steps 500] [--particles 100000] [--out DIR]
 
 1. builds the `sightline` binary and the `time_filter` example (release);
-2. simulates one `pendulum` dataset with `sightline simulate`;
-3. runs Sightline's `ukf` and `pf:particles=N` on it (the PF on 1 and on 2 threads) and the
-   numpy UKF and bootstrap PF of numpy_filters.py, each several times, keeping each side's
-   fastest run (the least disturbed by other load on the machine);
+2. simulates one `pendulum` and one `ungm` dataset with `sightline simulate`;
+3. runs Sightline's `ukf` and `pf:particles=N` on the pendulum (the PF on 1 and on 2 threads)
+   and the numpy UKF and bootstrap PF of numpy_filters.py, and both sides' PF on the growth
+   model (the bootstrap filter's own published example), each several times, keeping each
+   side's fastest run (the least disturbed by other load on the machine);
 4. checks that both sides estimate the same thing: the UKFs agree to rounding (the same
    deterministic equations), the PFs to their Monte Carlo error (independent random numbers);
 5. prints the per-step costs and their ratios against the goals, and writes them to
@@ -36,7 +37,7 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 import numpy as np  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from numpy_filters import Pendulum, bootstrap_pf, ukf  # noqa: E402
+from numpy_filters import Pendulum, Ungm, bootstrap_pf, bootstrap_pf_ungm, ukf  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -46,7 +47,7 @@ def run(cmd, env=None):
     return out.stdout
 
 
-def read_dataset(path):
+def read_dataset(path, measurement="position"):
     with open(path) as f:
         header = f.readline().strip().split(",")
         rows = [line.rstrip("\n").split(",") for line in f]
@@ -56,22 +57,30 @@ def read_dataset(path):
         return np.array([float(r[col[name]]) if r[col[name]] else math.nan for r in rows])
 
     u = column("u.torque") if "u.torque" in col else np.zeros(len(rows))
-    return column("t"), u, column("y.position")
+    return column("t"), u, column(f"y.{measurement}")
 
 
-def read_estimates(path):
-    data = np.loadtxt(path, delimiter=",", skiprows=1)
-    return data[:, 1:3], data[:, 3:5]
+def read_estimates(path, n=2):
+    data = np.loadtxt(path, delimiter=",", skiprows=1, ndmin=2)
+    return data[:, 1 : 1 + n], data[:, 1 + n : 1 + 2 * n]
 
 
-def sightline(data, spec, repeat, threads, out):
+def sightline(data, spec, repeat, threads, out, model="pendulum", n=2):
     env = dict(os.environ, RAYON_NUM_THREADS=str(threads))
     line = run(
-        [str(ROOT / "target/release/examples/time_filter"), "pendulum", str(data), spec,
+        [str(ROOT / "target/release/examples/time_filter"), model, str(data), spec,
          "--repeat", str(repeat), "-o", str(out)],
         env=env,
     )
-    return json.loads(line)["seconds_per_step"], read_estimates(out)
+    return json.loads(line)["seconds_per_step"], read_estimates(out, n)
+
+
+def pf_agreement(ours, theirs, sd, particles):
+    """RMS and largest difference of two independent PF means in posterior standard deviations.
+    Each estimate with ~N/2 effective particles has standard deviation about sd·√(2/N), so the
+    difference has about 2·sd/√N; its RMS over the steps must stay within a small multiple."""
+    z = (ours - theirs) / sd
+    return float(np.sqrt(np.mean(z**2))), float(np.max(np.abs(z))), 5.0 * 2.0 / math.sqrt(particles)
 
 
 def numpy_side(fn, repeat, *args):
@@ -121,25 +130,43 @@ def main():
     # PF: independent random numbers; the difference of two estimates with ~N/2 effective
     # particles each has standard deviation about 2·sd/√N per step, so its RMS over steps in
     # units of the posterior sd must be a small multiple of 2/√N, and no step far off.
-    pf_z = (rs_pf_m - np_pf_m) / rs_pf_sd
-    pf_rms = float(np.sqrt(np.mean(pf_z**2)))
-    pf_max = float(np.max(np.abs(pf_z)))
-    pf_bound = 5.0 * 2.0 / math.sqrt(a.particles)
+    pf_rms, pf_max, pf_bound = pf_agreement(rs_pf_m, np_pf_m, rs_pf_sd, a.particles)
     threads_same = bool(np.array_equal(rs_pf_m, rs_pf2_m))
+
+    # The growth model: the bootstrap filter's published example, no transcendental function
+    # per particle but the cosine of the time index.
+    growth = work / "ungm.csv"
+    run([str(ROOT / "target/release/sightline"), "simulate", "ungm", "--steps",
+         str(a.steps), "--seed", str(a.seed), "-o", str(growth)])
+    gt, _, gy = read_dataset(growth, "y")
+    g_steps = len(gt)
+    rs_g1, (rs_g_m, rs_g_sd) = sightline(growth, pf_spec, a.pf_repeat, 1, work / "g1.csv",
+                                         "ungm", 1)
+    rs_g2, (rs_g2_m, _) = sightline(growth, pf_spec, a.pf_repeat, 2, work / "g2.csv", "ungm", 1)
+    np_g, (np_g_m, _) = numpy_side(bootstrap_pf_ungm, a.pf_repeat, Ungm(), gt, gy, a.particles,
+                                   a.seed)
+    np_g /= g_steps
+    g_rms, g_max, _ = pf_agreement(rs_g_m, np_g_m, rs_g_sd, a.particles)
+    threads_same = threads_same and bool(np.array_equal(rs_g_m, rs_g2_m))
     checks = {
         "ukf_max_mean_difference_in_sd": ukf_dev,
         "ukf_max_relative_sd_difference": ukf_sd_dev,
         "pf_rms_mean_difference_in_sd": pf_rms,
         "pf_max_mean_difference_in_sd": pf_max,
         "pf_rms_bound": pf_bound,
+        "ungm_pf_rms_mean_difference_in_sd": g_rms,
+        "ungm_pf_max_mean_difference_in_sd": g_max,
         "pf_one_and_two_threads_identical": threads_same,
     }
-    ok = ukf_dev < 1e-6 and ukf_sd_dev < 1e-6 and pf_rms < pf_bound and threads_same
+    ok = (ukf_dev < 1e-6 and ukf_sd_dev < 1e-6 and pf_rms < pf_bound and g_rms < pf_bound
+          and threads_same)
 
     rows = [
         ("ukf step", rs_ukf, np_ukf, 50.0),
         (f"pf N={a.particles} step, 1 thread", rs_pf1, np_pf, 6.0),
         (f"pf N={a.particles} step, 2 threads", rs_pf2, np_pf, 6.0),
+        (f"ungm pf N={a.particles}, 1 thread", rs_g1, np_g, 6.0),
+        (f"ungm pf N={a.particles}, 2 threads", rs_g2, np_g, 6.0),
     ]
     load = os.getloadavg()
     print(f"pendulum, {steps} rows, numpy {np.__version__}, Python {platform.python_version()}, "
@@ -149,13 +176,14 @@ def main():
         ratio = nps / rs
         mark = "met" if ratio >= goal else "MISSED"
         print(f"{name:34} {rs * 1e6:10.2f}µs {nps * 1e6:10.2f}µs {ratio:7.1f}× {goal:5.0f}× {mark}")
-    print(f"PF 2 threads / 1 thread speed-up: {rs_pf1 / rs_pf2:.2f}×")
+    print(f"PF 2 threads / 1 thread speed-up: pendulum {rs_pf1 / rs_pf2:.2f}×, "
+          f"ungm {rs_g1 / rs_g2:.2f}×")
     for k, v in checks.items():
         print(f"  {k}: {v:.3g}" if isinstance(v, float) else f"  {k}: {v}")
     print("estimates agree" if ok else "ESTIMATES DISAGREE")
 
     result = {
-        "model": "pendulum",
+        "models": ["pendulum", "ungm"],
         "steps": steps,
         "particles": a.particles,
         "numpy": np.__version__,
@@ -167,11 +195,16 @@ def main():
             "sightline_pf_1_thread": rs_pf1,
             "sightline_pf_2_threads": rs_pf2,
             "numpy_pf": np_pf,
+            "sightline_ungm_pf_1_thread": rs_g1,
+            "sightline_ungm_pf_2_threads": rs_g2,
+            "numpy_ungm_pf": np_g,
         },
         "ratios": {
             "ukf": np_ukf / rs_ukf,
             "pf_1_thread": np_pf / rs_pf1,
             "pf_2_threads": np_pf / rs_pf2,
+            "ungm_pf_1_thread": np_g / rs_g1,
+            "ungm_pf_2_threads": np_g / rs_g2,
         },
         "checks": checks,
         "agree": ok,

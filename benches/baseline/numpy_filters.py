@@ -1,5 +1,6 @@
 """What a practitioner would otherwise write: a numpy UKF step loop and a vectorised numpy
-bootstrap particle filter for the `pendulum` plant, written from the published equations.
+bootstrap particle filter for the `pendulum` plant, and the same bootstrap filter for the
+growth model `ungm`, written from the published equations.
 
 Plant (the same equations as models/src/pendulum.rs):
     dθ/dt = ω,  dω/dt = −(g/L)·sin θ − c·ω + u + w(t),  E[w w] = qc δ(t − s)
@@ -17,6 +18,10 @@ Bayesian state estimation", IEE Proc. F 140(2), 1993): particles drawn through t
 density, weighted by the likelihood (kept as logarithms), systematic resampling (Kitagawa, JCGS
 5(1), 1996) when the effective sample size 1/Σw² falls below N/2; Q evaluated once per step at
 the weighted mean of the cloud.
+
+UNGM (the example of Gordon, Salmond & Smith 1993, §4.1, as in models/src/ungm.rs):
+    x(k) = x/2 + 25x/(1 + x²) + 8 cos(1.2 k) + w,  w ~ N(0, 10);  y = x²/20 + v,  v ~ N(0, 1);
+    prior N(0.1, 2); the same bootstrap filter (no Q to evaluate: it is constant).
 
 Every function works on the whole cloud of points at once (one column per point), so the only
 Python-level loop is over time steps.
@@ -152,6 +157,60 @@ def bootstrap_pf(plant, t, u, y, particles, seed):
             positions = (offsets + rng.random()) / count
             ancestors = np.minimum(np.searchsorted(np.cumsum(w), positions), count - 1)
             x = x[:, ancestors]
+            log_w = np.full(count, -math.log(count))
+            w = np.full(count, 1.0 / count)
+    return means, sds
+
+
+class Ungm:
+    """Default parameters of models/src/ungm.rs."""
+
+    q = 10.0
+    r = 1.0
+    x0 = 0.1
+    p0 = 2.0
+
+    def transition(self, x, k):
+        """x(k) from x(k − 1) for every particle (noise-free part)."""
+        return 0.5 * x + 25.0 * x / (1.0 + x * x) + 8.0 * math.cos(1.2 * k)
+
+    def measure(self, x):
+        return x * x / 20.0
+
+
+def bootstrap_pf_ungm(plant, t, y, particles, seed):
+    """Weighted posterior means and standard deviations (steps × 1 each) of the bootstrap PF on
+    the growth model; t are the sample times (the model's k), y the measurements."""
+    rng = np.random.default_rng(seed)
+    count = particles
+    x = plant.x0 + math.sqrt(plant.p0) * rng.standard_normal(count)
+    log_w = np.full(count, -math.log(count))
+    w = np.full(count, 1.0 / count)
+    log_norm = -0.5 * (math.log(plant.r) + math.log(2.0 * math.pi))
+    noise_sd = math.sqrt(plant.q)
+    steps = len(t)
+    means = np.empty((steps, 1))
+    sds = np.empty((steps, 1))
+    offsets = np.arange(count)
+    for k in range(steps):
+        if k > 0:
+            x = plant.transition(x, t[k]) + noise_sd * rng.standard_normal(count)
+        if not math.isnan(y[k]):
+            e = y[k] - plant.measure(x)
+            log_w = log_w + (log_norm - 0.5 / plant.r * e * e)
+            top = log_w.max()
+            w = np.exp(log_w - top)
+            total = w.sum()
+            log_w -= top + math.log(total)
+            w /= total
+        mean = x @ w
+        d = x - mean
+        means[k, 0] = mean
+        sds[k, 0] = math.sqrt((d * w) @ d)
+        if 1.0 / (w @ w) < 0.5 * count:
+            positions = (offsets + rng.random()) / count
+            ancestors = np.minimum(np.searchsorted(np.cumsum(w), positions), count - 1)
+            x = x[ancestors]
             log_w = np.full(count, -math.log(count))
             w = np.full(count, 1.0 / count)
     return means, sds

@@ -64,6 +64,10 @@ pub struct DiagnosticsSummary {
     pub resamples: u64,
     /// Iterations of iterated updates.
     pub iterations: u64,
+    /// Extra stages of tempered particle-filter updates (absent in files written before the
+    /// option existed).
+    #[serde(default)]
+    pub tempered: u64,
 }
 
 impl From<sightline_filters::Diagnostics> for DiagnosticsSummary {
@@ -74,6 +78,7 @@ impl From<sightline_filters::Diagnostics> for DiagnosticsSummary {
             redraws: d.redraws,
             resamples: d.resamples,
             iterations: d.iterations,
+            tempered: d.tempered,
         }
     }
 }
@@ -86,6 +91,7 @@ impl DiagnosticsSummary {
         self.redraws += other.redraws;
         self.resamples += other.resamples;
         self.iterations += other.iterations;
+        self.tempered += other.tempered;
     }
 }
 

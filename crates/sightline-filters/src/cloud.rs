@@ -45,6 +45,10 @@ pub(crate) mod purpose {
     pub const PERTURB: u64 = 8;
     /// Backward simulation of the particle smoother.
     pub const SMOOTH: u64 = 9;
+    /// Resampling between the stages of a tempered update.
+    pub const TEMPER_RESAMPLE: u64 = 10;
+    /// Jitter between the stages of a tempered update.
+    pub const TEMPER_JITTER: u64 = 11;
 }
 
 /// Number of blocks for `count` samples.
@@ -164,6 +168,27 @@ pub(crate) fn scatter<M: Model>(
                 add_gaussian(&mut x, &l, &mut rng);
                 model.project(&mut x);
                 sample.copy_from_slice(x.as_slice());
+            }
+        });
+}
+
+/// Pulls every sample towards `mean` by the factor `a`: x ← m + a·(x ⊖ m), ⊖ the model's
+/// `state_residual` (the shrinkage step of Liu & West 2001, §10.3.3).
+pub(crate) fn shrink<M: Model>(model: &M, cloud: &mut [f64], mean: &[f64], a: f64)
+where
+    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+{
+    let nd = model.state_dim();
+    let n = nd.value();
+    cloud
+        .par_chunks_mut(n * BLOCK)
+        .with_min_len(min_blocks_per_job())
+        .for_each(|chunk| {
+            let m = vector(nd, mean);
+            for sample in chunk.chunks_exact_mut(n) {
+                let x = vector(nd, sample);
+                let pulled = &m + model.state_residual(&x, &m) * a;
+                sample.copy_from_slice(pulled.as_slice());
             }
         });
 }

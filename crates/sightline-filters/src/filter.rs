@@ -85,6 +85,8 @@ pub struct Diagnostics {
     pub redraws: u64,
     /// Resampling events.
     pub resamples: u64,
+    /// Extra stages of tempered particle-filter updates (each one a resampling).
+    pub tempered: u64,
     /// Iterations of iterated updates, summed.
     pub iterations: u64,
 }

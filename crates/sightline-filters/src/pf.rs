@@ -26,8 +26,25 @@
 //! that state over the cloud: Gordon et al. 1993, §4), `regularise=on` (after resampling add
 //! h·D·ε with D Dᵀ the weighted covariance and the Gaussian-kernel bandwidth
 //! h = (4/(n+2))^(1/(n+4)) N^(−1/(n+4)): the post-regularised filter of Musso, Oudjane & Le Gland,
-//! in *Sequential Monte Carlo Methods in Practice*, 2001, §12.2), `variant=auxiliary`, `redraw`
-//! and `noise` ([`NoiseAt`]).
+//! in *Sequential Monte Carlo Methods in Practice*, 2001, §12.2), `temper=F` (below),
+//! `variant=auxiliary`, `redraw` and `noise` ([`NoiseAt`]).
+//!
+//! **Tempered updates** (`temper=F`, 0 < F < 1; off by default). A measurement much sharper
+//! than the predicted cloud leaves almost all the weight on a few particles (e.g. the first
+//! update from a wide prior): the estimate is then built from a handful of points and its
+//! covariance is nearly singular. With `temper=F` such an update is split into stages, the
+//! progressive correction of Musso, Oudjane & Le Gland (2001, §12.4.1): the likelihood is
+//! applied as p(y | x)^Δ₁, p(y | x)^Δ₂, … with Σ Δ = 1, each exponent the largest that keeps the
+//! effective sample size at least F times its value at the start of the stage (found by
+//! bisection, as in the adaptive tempering of Jasra, Stephens, Doucet & Tsagaris, Scand. J. Stat.
+//! 38(1), 2011), and between stages the cloud is resampled and moved by the regularisation
+//! kernel with Liu–West shrinkage ([`Jitter::Shrunk`], whatever jitter is configured for
+//! ordinary resampling): it keeps the cloud's mean and covariance, so repeated stages do not
+//! inflate the spread of unmeasured states. An update that keeps the ESS above F
+//! times its starting value runs in one stage, exactly as without the option. The likelihood
+//! increment is the sum of the stages' log mean weights. At most 32 stages; the last takes what
+//! is left of the exponent. Extra stages are counted in [`Diagnostics::tempered`]. The auxiliary
+//! variant does not temper.
 //!
 //! **Auxiliary variant.** At an update, the first stage weighs the look-ahead points
 //! μᵢ = f(xᵢ(k−1)) by λᵢ ∝ w̄ᵢ p(y | μᵢ), selects N ancestors aᵢ by λ with the chosen scheme and
@@ -74,6 +91,9 @@ use crate::smoother::SmoothedTrack;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
 use crate::update::{InnovationStore, LN_2PI, mask_missing, present_mask};
 
+/// Most stages a tempered update is split into (`temper=F`).
+const MAX_TEMPERING_STAGES: usize = 32;
+
 /// Registry entry for `pf`.
 pub const INFO: KindInfo = KindInfo {
     kind: "pf",
@@ -103,6 +123,11 @@ pub const INFO: KindInfo = KindInfo {
             key: "regularise",
             default: "off",
             about: "on: Gaussian-kernel jitter after resampling (Musso et al. 2001)",
+        },
+        OptionInfo {
+            key: "temper",
+            default: "0",
+            about: "split an update that would keep < F of the ESS into tempered stages (0 = off)",
         },
         OptionInfo {
             key: "variant",
@@ -146,6 +171,10 @@ pub enum Jitter {
     Roughening(f64),
     /// Post-regularisation with the optimal Gaussian kernel (Musso et al. 2001).
     Regularised,
+    /// The same kernel with shrinkage towards the mean, xᵢ ← m + a(xᵢ − m) + h·D·ε with
+    /// a = √(1 − h²), which keeps the cloud's mean and covariance (Liu & West, in *Sequential
+    /// Monte Carlo Methods in Practice*, 2001, §10.3.3). Used between tempering stages.
+    Shrunk,
 }
 
 /// Settings of a [`ParticleFilter`]; `Default` gives the spec defaults.
@@ -159,6 +188,8 @@ pub struct PfConfig {
     pub ess: f64,
     /// Jitter after resampling.
     pub jitter: Jitter,
+    /// ESS fraction F below which an update is split into tempered stages (0 = never).
+    pub temper: f64,
     /// Bootstrap or auxiliary.
     pub variant: Variant,
     /// Re-draw from the predicted Gaussian instead of failing on collapse.
@@ -176,6 +207,7 @@ impl Default for PfConfig {
             scheme: Scheme::Systematic,
             ess: 0.5,
             jitter: Jitter::None,
+            temper: 0.0,
             variant: Variant::Sir,
             redraw: false,
             noise: NoiseAt::Mean,
@@ -706,8 +738,15 @@ where
 
     /// Resamples by the current weights into the spare buffer, swaps, and jitters.
     fn resample(&mut self) -> Result<(), FilterError> {
-        let step = self.tag.step as u64;
-        let mut rng = stream(self.seed, &[purpose::RESAMPLE, step]);
+        let keys = [purpose::RESAMPLE, purpose::JITTER, self.tag.step as u64];
+        self.resample_keyed(keys, self.config.jitter)
+    }
+
+    /// [`Self::resample`] with the streams keyed `[resample key, jitter key, step key]` and the
+    /// given jitter (tempering stages use their own keys).
+    fn resample_keyed(&mut self, keys: [u64; 3], jitter: Jitter) -> Result<(), FilterError> {
+        let [resample_key, jitter_key, step] = keys;
+        let mut rng = stream(self.seed, &[resample_key, step]);
         // Systematic (the default) runs in parallel blocks; `scratch` is free after the weighting
         // pass, and the first slots of `partials` hold the block totals.
         let in_blocks = self.config.scheme == Scheme::Systematic && {
@@ -747,15 +786,15 @@ where
         std::mem::swap(&mut self.particles, &mut self.spare);
         self.set_uniform_weights();
         self.diagnostics.resamples += 1;
-        self.jitter()
+        self.jitter(jitter, jitter_key, step)
     }
 
     /// Roughening or regularisation after a resampling.
-    fn jitter(&mut self) -> Result<(), FilterError> {
+    fn jitter(&mut self, jitter: Jitter, key: u64, step: u64) -> Result<(), FilterError> {
         let nd = self.model.state_dim();
         let n = nd.value();
         let count = self.count() as f64;
-        let factor = match self.config.jitter {
+        let factor = match jitter {
             Jitter::None => return Ok(()),
             Jitter::Roughening(k) => {
                 if k == 0.0 {
@@ -765,12 +804,23 @@ where
                 let scale = k * count.powf(-1.0 / n as f64);
                 OMatrix::<f64, M::State, M::State>::from_diagonal(&(spread * scale))
             }
-            Jitter::Regularised => {
+            Jitter::Regularised | Jitter::Shrunk => {
                 // Optimal bandwidth of the Gaussian kernel (Musso et al. 2001, eq. 12.7).
                 let nf = n as f64;
                 let a = (4.0 / (nf + 2.0)).powf(1.0 / (nf + 4.0));
                 let h = a * count.powf(-1.0 / (nf + 4.0));
-                lower_factor(&self.cov, "particle covariance").map_err(|e| self.tag.numeric(e))? * h
+                let factor = lower_factor(&self.cov, "particle covariance")
+                    .map_err(|e| self.tag.numeric(e))?;
+                if jitter == Jitter::Shrunk {
+                    // h < 1 for every N ≥ 2 and n ≥ 1, so the shrinkage factor is real.
+                    cloud::shrink(
+                        &self.model,
+                        self.particles.as_mut_slice(),
+                        self.mean.as_slice(),
+                        (1.0 - h * h).max(0.0).sqrt(),
+                    );
+                }
+                factor * h
             }
         };
         cloud::scatter(
@@ -779,8 +829,8 @@ where
             None,
             factor.as_slice(),
             self.seed,
-            purpose::JITTER,
-            self.tag.step as u64,
+            key,
+            step,
         );
         Ok(())
     }
@@ -878,6 +928,9 @@ where
         lik: &Likelihood<M::Meas>,
     ) -> Result<(), FilterError> {
         let ys = y.as_slice();
+        if self.config.temper > 0.0 {
+            return self.tempered_update(y, present, u, t, lik);
+        }
         let (mut max, mut valid_sum) =
             self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
         if !max.is_finite() {
@@ -890,6 +943,156 @@ where
         // The prior weights summed to 1, so ln Σ exp(new log-weights) = ln Σ w̄ᵢ p(y | xᵢ).
         self.log_likelihood = self.normalise(max);
         self.finish_update()
+    }
+
+    /// The update in tempered stages (`temper=F`; see the module docs).
+    fn tempered_update(
+        &mut self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> Result<(), FilterError> {
+        let ys = y.as_slice();
+        // ln p(y | xᵢ) of every particle into `scratch_log`.
+        self.scratch_log.fill(0.0);
+        let (max_log_lik, valid_sum) =
+            self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
+        if !max_log_lik.is_finite() {
+            // Every likelihood vanished: the untempered path reports or recovers the collapse.
+            let mut untempered = self.config;
+            untempered.temper = 0.0;
+            let saved = std::mem::replace(&mut self.config, untempered);
+            let outcome = self.sir_update(y, present, u, t, lik);
+            self.config = saved;
+            return outcome;
+        }
+        self.innovation_stats(y, present, valid_sum, &lik.r)?;
+        let step = self.tag.step as u64;
+        let mut remaining = 1.0;
+        let mut log_z = 0.0;
+        for stage in 0..MAX_TEMPERING_STAGES {
+            let delta = if stage + 1 == MAX_TEMPERING_STAGES {
+                remaining
+            } else {
+                self.tempering_exponent(remaining)
+            };
+            let max = self.add_tempered_log_likelihood(delta);
+            if !max.is_finite() {
+                return Err(self.collapse());
+            }
+            log_z += self.normalise(max);
+            if delta >= remaining {
+                break;
+            }
+            remaining -= delta;
+            // Resample and move the cloud, then weigh the moved particles afresh.
+            self.estimate()?;
+            let keys = [
+                purpose::TEMPER_RESAMPLE,
+                purpose::TEMPER_JITTER,
+                step * MAX_TEMPERING_STAGES as u64 + stage as u64,
+            ];
+            self.resample_keyed(keys, Jitter::Shrunk)?;
+            self.diagnostics.tempered += 1;
+            self.scratch_log.fill(0.0);
+            let (max_moved, _) = self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
+            if !max_moved.is_finite() {
+                return Err(self.collapse());
+            }
+        }
+        self.log_likelihood = log_z;
+        self.finish_update()
+    }
+
+    /// The largest exponent Δ ≤ `remaining` for which the weights wᵢ·p(y | xᵢ)^Δ keep an
+    /// effective sample size of at least `temper` times the current one (bisection on Δ; the
+    /// ESS falls as Δ grows). At least `remaining`·2⁻²⁴, so every stage makes progress.
+    fn tempering_exponent(&mut self, remaining: f64) -> f64 {
+        let target = self.config.temper * self.tempered_ess(0.0);
+        if self.tempered_ess(remaining) >= target {
+            return remaining;
+        }
+        let (mut lo, mut hi) = (0.0, remaining);
+        for _ in 0..24 {
+            let mid = 0.5 * (lo + hi);
+            if self.tempered_ess(mid) >= target {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        lo.max(remaining * (-24.0f64).exp2())
+    }
+
+    /// Effective sample size of the weights ∝ exp(log wᵢ + Δ·ln p(y | xᵢ)), by blocks (a
+    /// block's maximum, Σe^(a−max) and Σe^(2(a−max)), combined in block order).
+    fn tempered_ess(&mut self, delta: f64) -> f64 {
+        let blocks = block_count(self.count());
+        (
+            self.log_weights.par_chunks(BLOCK),
+            self.scratch_log.par_chunks(BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(lw, ll, slot)| {
+                let at = |k: usize| lw[k] + delta * ll[k];
+                let max = (0..lw.len()).map(at).fold(f64::NEG_INFINITY, f64::max);
+                let (mut sum, mut squares) = (0.0, 0.0);
+                if max.is_finite() {
+                    for k in 0..lw.len() {
+                        let w = (at(k) - max).exp();
+                        sum += w;
+                        squares += w * w;
+                    }
+                }
+                slot[..3].copy_from_slice(&[max, sum, squares]);
+            });
+        let slots = || self.partials.chunks_exact(self.stride).take(blocks);
+        let max = slots().map(|s| s[0]).fold(f64::NEG_INFINITY, f64::max);
+        if !max.is_finite() {
+            return 0.0;
+        }
+        let (mut sum, mut squares) = (0.0, 0.0);
+        for s in slots() {
+            if s[0].is_finite() {
+                let scale = (s[0] - max).exp();
+                sum += s[1] * scale;
+                squares += s[2] * scale * scale;
+            }
+        }
+        sum * sum / squares
+    }
+
+    /// Adds Δ·ln p(y | xᵢ) to the log-weights; returns the largest.
+    fn add_tempered_log_likelihood(&mut self, delta: f64) -> f64 {
+        let blocks = block_count(self.count());
+        (
+            self.log_weights.par_chunks_mut(BLOCK),
+            self.scratch_log.par_chunks(BLOCK),
+            self.partials.par_chunks_mut(self.stride),
+        )
+            .into_par_iter()
+            .with_min_len(min_blocks_per_job())
+            .for_each(|(lw, ll, slot)| {
+                let mut max = f64::NEG_INFINITY;
+                for (w, l) in lw.iter_mut().zip(ll) {
+                    let mut v = *w + delta * l;
+                    if v.is_nan() {
+                        v = f64::NEG_INFINITY;
+                    }
+                    *w = v;
+                    max = max.max(v);
+                }
+                slot[0] = max;
+            });
+        self.partials
+            .chunks_exact(self.stride)
+            .take(blocks)
+            .map(|s| s[0])
+            .fold(f64::NEG_INFINITY, f64::max)
     }
 
     fn auxiliary_update(
@@ -1025,6 +1228,12 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
         (false, true) => Jitter::Regularised,
         (false, false) => Jitter::None,
     };
+    let temper = o.real(
+        "temper",
+        defaults.temper,
+        |f| (0.0..1.0).contains(&f),
+        "an ESS fraction from 0 (off) up to but excluding 1",
+    )?;
     let variant = match o.choice("variant", "sir", &["sir", "auxiliary"])? {
         "auxiliary" => Variant::Auxiliary,
         _ => Variant::Sir,
@@ -1040,6 +1249,7 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
         scheme,
         ess,
         jitter,
+        temper,
         variant,
         redraw,
         noise,
@@ -1225,6 +1435,8 @@ mod tests {
             ("pf:resample=best", "systematic"),
             ("pf:roughening=-1", "roughening"),
             ("pf:roughening=0.2,regularise=on", "choose one"),
+            ("pf:temper=1", "up to but excluding 1"),
+            ("pf:temper=-0.1", "an ESS fraction"),
             ("pf:variant=unscented", "auxiliary"),
             ("pf:members=10", "particles"),
         ] {

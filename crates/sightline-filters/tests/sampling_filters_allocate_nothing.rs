@@ -139,8 +139,9 @@ fn allocations(spec: &str, pool: &rayon::ThreadPool, steps: usize) -> usize {
     })
 }
 
-const SPECS: [&str; 6] = [
+const SPECS: [&str; 7] = [
     "pf:particles=5000,ess=1,roughening=0.2",
+    "pf:particles=5000,temper=0.9",
     "pf:particles=5000,ess=1,resample=multinomial,regularise=on,noise=each",
     "pf:particles=5000,ess=1,resample=residual,variant=auxiliary",
     "pf:particles=3000,ess=1,resample=stratified,variant=auxiliary,noise=each,redraw=on",

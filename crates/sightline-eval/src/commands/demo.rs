@@ -54,7 +54,7 @@ pub const SCENARIO: Scenario = Scenario {
         "ekf",
         "ukf",
         "ckf",
-        "pf:particles=2000,roughening=0.2",
+        "pf:particles=2000,temper=0.1",
         "enkf:members=200",
     ],
     story: "Night-time irrigation: at dusk two pumps (3 V each) start filling a cascade of four \
