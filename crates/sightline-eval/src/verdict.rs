@@ -68,6 +68,11 @@ fn judge(value: Option<f64>, band: Option<[f64; 2]>) -> Consistency {
 /// (the time-average test is exact only for the white innovations, i.e. the NIS).
 pub const TAIL_LIMIT: f64 = 0.10;
 
+/// Factor above the upper end of its band at which a single run's ANEES, with consistent NEES
+/// tails, is reported as dominated by a few outlying steps (our own choice: a mean ten times
+/// the band's top cannot come from the band's 2.5 % upper tail).
+pub const OUTLIER_DOMINATED: f64 = 10.0;
+
 /// State consistency: over Monte Carlo runs the ANEES against χ²(M·n)/M; on one dataset the
 /// shares of steps whose NEES falls below or above the χ²(n) band.
 pub fn state_consistency(f: &FilterSummary, campaign: bool) -> Consistency {
@@ -198,6 +203,35 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
                 },
                 names(&state_ok)
             ));
+        }
+        // One run's ANEES is a mean: a few steps with an enormous NEES (a particle cloud that
+        // collapsed on the first sharp update, say) can push it far out of its band while the
+        // tails stay normal. Say so rather than leave the table to contradict the judgement.
+        if !campaign {
+            for f in &state_ok {
+                if let (Some(v), Some([_, hi]), Some([_, above])) =
+                    (f.anees, f.anees_band, f.nees_tails)
+                {
+                    if v > OUTLIER_DOMINATED * hi {
+                        let hint = if f.kind == "pf" {
+                            " For a particle filter, `temper=0.1` splits such updates."
+                        } else {
+                            ""
+                        };
+                        lines.push(format!(
+                            "{}: ANEES {} is far above its band [{}, {}] yet only {} % of steps \
+                             lie above the band: a few steps with a very large NEES dominate the \
+                             mean (see its NEES plot; often the first updates from the prior).{}",
+                            f.label,
+                            sig(v, 3),
+                            sig(f.anees_band.map_or(f64::NAN, |b| b[0]), 3),
+                            sig(hi, 3),
+                            sig(100.0 * above, 2),
+                            hint
+                        ));
+                    }
+                }
+            }
         }
         if !over.is_empty() {
             lines.push(format!(
@@ -503,6 +537,24 @@ mod tests {
             "{v}"
         );
         assert!(v.contains("On this run, ekf is the most accurate"), "{v}");
+    }
+
+    #[test]
+    fn an_anees_dominated_by_a_few_steps_is_explained() {
+        let mut spiky = filter("pf", 1.0, 2.0e5, 1e-3);
+        spiky.nees_tails = Some([0.02, 0.05]);
+        let mut plain = filter("ekf", 1.0, 2.0, 1e-6);
+        plain.nees_tails = Some([0.02, 0.03]);
+        let text = verdict(&[spiky, plain], true, None, 900);
+        assert!(
+            text.contains("pf: ANEES 200000 is far above its band [1.80, 2.20] yet only 5.0 %"),
+            "{text}"
+        );
+        assert!(
+            text.contains("For a particle filter, `temper=0.1`"),
+            "{text}"
+        );
+        assert!(!text.contains("ekf: ANEES"), "{text}");
     }
 
     #[test]
