@@ -447,6 +447,14 @@ where
         &self.config
     }
 
+    /// The per-block partial results of the last parallel pass, one slice per block in block
+    /// order (combining them in this order keeps results independent of the thread count).
+    fn block_partials(&self) -> std::iter::Take<std::slice::ChunksExact<'_, f64>> {
+        self.partials
+            .chunks_exact(self.stride)
+            .take(block_count(self.count()))
+    }
+
     fn count(&self) -> usize {
         self.config.particles
     }
@@ -617,10 +625,11 @@ where
                 slot[0] = max;
                 slot[1] = valid_sum;
             });
-        let blocks = block_count(self.count());
-        let slots = || self.partials.chunks_exact(self.stride).take(blocks);
-        let max = slots().map(|s| s[0]).fold(f64::NEG_INFINITY, f64::max);
-        let valid_sum: f64 = slots().map(|s| s[1]).sum();
+        let max = self
+            .block_partials()
+            .map(|s| s[0])
+            .fold(f64::NEG_INFINITY, f64::max);
+        let valid_sum: f64 = self.block_partials().map(|s| s[1]).sum();
         (max, valid_sum)
     }
 
@@ -665,8 +674,7 @@ where
                 slot[..m * m].copy_from_slice(sum.as_slice());
             });
         let mut s = r.clone();
-        let blocks = block_count(self.count());
-        for slot in self.partials.chunks_exact(self.stride).take(blocks) {
+        for slot in self.block_partials() {
             for (t, v) in s.iter_mut().zip(&slot[..m * m]) {
                 *t += v;
             }
@@ -686,7 +694,6 @@ where
     /// no weight underflows to zero unless it is negligible against the largest, and refreshes
     /// the linear weights and the ESS. Returns the log normaliser ln Σ exp(log-weights).
     fn normalise(&mut self, max: f64) -> f64 {
-        let blocks = block_count(self.count());
         (
             self.log_weights.par_chunks(BLOCK),
             self.weights.par_chunks_mut(BLOCK),
@@ -702,12 +709,7 @@ where
                 }
                 slot[0] = sum;
             });
-        let total: f64 = self
-            .partials
-            .chunks_exact(self.stride)
-            .take(blocks)
-            .map(|s| s[0])
-            .sum();
+        let total: f64 = self.block_partials().map(|s| s[0]).sum();
         let log_z = max + total.ln();
         let scale = 1.0 / total;
         (
@@ -726,12 +728,7 @@ where
                 }
                 slot[0] = squares;
             });
-        let squares: f64 = self
-            .partials
-            .chunks_exact(self.stride)
-            .take(blocks)
-            .map(|s| s[0])
-            .sum();
+        let squares: f64 = self.block_partials().map(|s| s[0]).sum();
         self.ess = 1.0 / squares;
         log_z
     }
@@ -857,9 +854,8 @@ where
                 }
             });
         let mut spread = OVector::<f64, M::State>::zeros_generic(nd, nalgebra::U1);
-        let blocks = block_count(self.count());
         for j in 0..n {
-            let slots = || self.partials.chunks_exact(self.stride).take(blocks);
+            let slots = || self.block_partials();
             let lo = slots().map(|s| s[j]).fold(f64::INFINITY, f64::min);
             let hi = slots().map(|s| s[n + j]).fold(f64::NEG_INFINITY, f64::max);
             spread[j] = hi - lo;
@@ -1029,7 +1025,6 @@ where
     /// Effective sample size of the weights ∝ exp(log wᵢ + Δ·ln p(y | xᵢ)), by blocks (a
     /// block's maximum, Σe^(a−max) and Σe^(2(a−max)), combined in block order).
     fn tempered_ess(&mut self, delta: f64) -> f64 {
-        let blocks = block_count(self.count());
         (
             self.log_weights.par_chunks(BLOCK),
             self.scratch_log.par_chunks(BLOCK),
@@ -1050,7 +1045,7 @@ where
                 }
                 slot[..3].copy_from_slice(&[max, sum, squares]);
             });
-        let slots = || self.partials.chunks_exact(self.stride).take(blocks);
+        let slots = || self.block_partials();
         let max = slots().map(|s| s[0]).fold(f64::NEG_INFINITY, f64::max);
         if !max.is_finite() {
             return 0.0;
@@ -1068,7 +1063,6 @@ where
 
     /// Adds Δ·ln p(y | xᵢ) to the log-weights; returns the largest.
     fn add_tempered_log_likelihood(&mut self, delta: f64) -> f64 {
-        let blocks = block_count(self.count());
         (
             self.log_weights.par_chunks_mut(BLOCK),
             self.scratch_log.par_chunks(BLOCK),
@@ -1088,9 +1082,7 @@ where
                 }
                 slot[0] = max;
             });
-        self.partials
-            .chunks_exact(self.stride)
-            .take(blocks)
+        self.block_partials()
             .map(|s| s[0])
             .fold(f64::NEG_INFINITY, f64::max)
     }
