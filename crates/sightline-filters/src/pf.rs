@@ -322,7 +322,7 @@ where
     /// `(seed, initial)`).
     ///
     /// Fails, naming the setting, if the config is out of range (fewer than 2 particles, `ess`
-    /// outside [0, 1], a negative roughening constant), if the plant has no state or no
+    /// outside [0, 1], a negative roughening constant, `temper` outside [0, 1)), if the plant has no state or no
     /// measurement, or if the prior covariance is not positive semi-definite.
     pub fn new(
         model: M,
@@ -363,6 +363,13 @@ where
             if !(k.is_finite() && k >= 0.0) {
                 return Err(bad("roughening", k.to_string(), "a number >= 0"));
             }
+        }
+        if !(0.0..1.0).contains(&config.temper) {
+            return Err(bad(
+                "temper",
+                config.temper.to_string(),
+                "an ESS fraction from 0 (off) up to but excluding 1",
+            ));
         }
         let not_applicable = |reason: String| SpecError::NotApplicable {
             spec: label.to_string(),
