@@ -3,12 +3,10 @@
 //! remedies every Gaussian filter shares ([`Remedies`]: covariance repair and χ² gating).
 
 use nalgebra::{DefaultAllocator, Dim, OMatrix, OVector};
-use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, ensure_finite, floor_eigenvalues, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 
 use crate::filter::{Diagnostics, FilterError, Tag};
-use crate::linearise::{JacobianSource, transition_jacobian};
 use crate::smoother::{GaussianRecord, SmoothedTrack, SmootherKind};
 use crate::spec::{OptionInfo, Options, SpecError};
 use crate::update::{InnovationStore, mask_missing, present_mask};
@@ -345,33 +343,3 @@ macro_rules! belief_accessors {
     };
 }
 pub(crate) use belief_accessors;
-
-/// The linearised time update, shared by `kf`, `ekf` and `iekf`.
-impl<M: Model> Belief<M>
-where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
-{
-    /// x⁻ = f(x), P⁻ = F P Fᵀ + Q with F = ∂f/∂x at the filtered mean (Jazwinski, *Stochastic
-    /// Processes and Filtering Theory*, 1970, §8.3), recording Cov(x(k−1), x(k)) = P Fᵀ for the
-    /// RTS smoother when recording (Rauch, Tung & Striebel 1965).
-    pub fn linearised_predict(
-        &mut self,
-        u: &[f64],
-        t: f64,
-        dt: f64,
-        source: JacobianSource,
-    ) -> Result<(), FilterError> {
-        self.tag.step += 1;
-        let u = self.input(u)?;
-        let (fx, f) = transition_jacobian(&self.model, &self.mean, &u, t, dt, source);
-        let q = self.model.process_noise(&self.mean, &u, t, dt);
-        if self.recording() {
-            let cross = &self.cov * f.transpose();
-            self.record_transition(cross);
-        }
-        self.mean = fx;
-        self.cov = &f * &self.cov * f.transpose() + q;
-        self.finish_predict()
-    }
-}

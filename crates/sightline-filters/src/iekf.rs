@@ -31,7 +31,7 @@ use sightline_core::{Alloc, Gaussian, Model};
 
 use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
 use crate::filter::{Filter, FilterError};
-use crate::linearise::{JacobianSource, measurement_jacobian};
+use crate::linearise::{JacobianSource, measurement_jacobian, transition_jacobian};
 use crate::registry::KindInfo;
 use crate::smoother::SmootherKind;
 use crate::spec::{FilterSpec, OptionInfo, SpecError};
@@ -148,7 +148,19 @@ where
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         // The time update is the EKF's: x⁻ = f(x), P⁻ = F P Fᵀ + Q.
-        self.belief.linearised_predict(u, t, dt, self.source)
+        let b = &mut self.belief;
+        b.tag.step += 1;
+        let u = b.input(u)?;
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
+        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
+        b.mean = fx;
+        b.cov = &f * &b.cov * f.transpose() + q;
+        b.finish_predict()
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {

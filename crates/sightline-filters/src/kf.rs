@@ -198,8 +198,19 @@ where
     }
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
-        self.belief
-            .linearised_predict(u, t, dt, JacobianSource::Model)
+        let b = &mut self.belief;
+        b.tag.step += 1;
+        let u = b.input(u)?;
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, JacobianSource::Model);
+        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        if b.recording() {
+            // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
+            let cross = &b.cov * f.transpose();
+            b.record_transition(cross);
+        }
+        b.mean = fx;
+        b.cov = &f * &b.cov * f.transpose() + q;
+        b.finish_predict()
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
