@@ -44,7 +44,7 @@
 //! times its starting value runs in one stage, exactly as without the option. The likelihood
 //! increment is the sum of the stages' log mean weights. At most 32 stages; the last takes what
 //! is left of the exponent. Extra stages are counted in [`Diagnostics::tempered`]. The auxiliary
-//! variant does not temper.
+//! variant does not temper (the spec refuses `temper` with `variant=auxiliary`).
 //!
 //! **Auxiliary variant.** At an update, the first stage weighs the look-ahead points
 //! μᵢ = f(xᵢ(k−1)) by λᵢ ∝ w̄ᵢ p(y | μᵢ), selects N ancestors aᵢ by λ with the chosen scheme and
@@ -1237,6 +1237,12 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<PfConfig, SpecError> {
         "auxiliary" => Variant::Auxiliary,
         _ => Variant::Sir,
     };
+    if variant == Variant::Auxiliary && temper > 0.0 {
+        return Err(o.not_applicable(
+            "temper splits the bootstrap (variant=sir) update; the auxiliary variant's two-stage \
+             weights are not tempered — drop one of them",
+        ));
+    }
     let redraw = o.switch("redraw", false)?;
     let noise = match o.choice("noise", "mean", &["mean", "each"])? {
         "each" => NoiseAt::Each,
@@ -1435,6 +1441,7 @@ mod tests {
             ("pf:roughening=-1", "roughening"),
             ("pf:roughening=0.2,regularise=on", "choose one"),
             ("pf:temper=1", "up to but excluding 1"),
+            ("pf:temper=0.1,variant=auxiliary", "drop one of them"),
             ("pf:temper=-0.1", "an ESS fraction"),
             ("pf:variant=unscented", "auxiliary"),
             ("pf:members=10", "particles"),
