@@ -5,7 +5,7 @@
 mod common;
 mod common_cli;
 
-use common_cli::{expect, json, s};
+use common_cli::{expect, json, s, without_truth};
 use sightline::eval::dataset::Record;
 use sightline::eval::dataset::read::{DatasetReader, ReadOptions, Schema};
 use sightline::{FilterSpec, shipped};
@@ -190,19 +190,8 @@ fn compare_smooth_without_truth_writes_tracks_but_no_accuracy() {
         0,
     );
     // Drop the x. columns, as in a real plant log.
-    let mut reader = csv::Reader::from_path(&data).unwrap();
-    let header = reader.headers().unwrap().clone();
-    let keep: Vec<usize> = (0..header.len())
-        .filter(|&i| !header[i].starts_with("x."))
-        .collect();
     let log = dir.path().join("log.csv");
-    let mut w = csv::Writer::from_path(&log).unwrap();
-    w.write_record(keep.iter().map(|&i| &header[i])).unwrap();
-    for r in reader.records() {
-        let r = r.unwrap();
-        w.write_record(keep.iter().map(|&i| &r[i])).unwrap();
-    }
-    w.flush().unwrap();
+    without_truth(&data, &log);
     let out = dir.path().join("out");
     let stdout = expect(
         &[

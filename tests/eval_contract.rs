@@ -3,7 +3,7 @@
 //! unsharded result.
 
 mod common_cli;
-use common_cli::{expect, json, s, sightline};
+use common_cli::{expect, json, s, sightline, without_truth};
 use serde_json::Value;
 
 /// Keys every filter entry of summary.json carries (design notes §4, binding).
@@ -149,19 +149,8 @@ fn compare_without_truth_judges_by_nis_whiteness_and_likelihood() {
         0,
     );
     // Drop the x. columns, as in a real plant log.
-    let mut reader = csv::Reader::from_path(&data).unwrap();
-    let header = reader.headers().unwrap().clone();
-    let keep: Vec<usize> = (0..header.len())
-        .filter(|&i| !header[i].starts_with("x."))
-        .collect();
     let log = dir.path().join("log.csv");
-    let mut w = csv::Writer::from_path(&log).unwrap();
-    w.write_record(keep.iter().map(|&i| &header[i])).unwrap();
-    for r in reader.records() {
-        let r = r.unwrap();
-        w.write_record(keep.iter().map(|&i| &r[i])).unwrap();
-    }
-    w.flush().unwrap();
+    without_truth(&data, &log);
     let out = dir.path().join("out");
     expect(
         &[

@@ -34,3 +34,19 @@ pub fn s(p: &Path) -> &str {
 pub fn json(p: &Path) -> serde_json::Value {
     serde_json::from_str(&std::fs::read_to_string(p).unwrap()).unwrap()
 }
+
+/// Copies the dataset `data` to `log` without its `x.` (truth) columns, as a real plant log.
+pub fn without_truth(data: &Path, log: &Path) {
+    let mut reader = csv::Reader::from_path(data).unwrap();
+    let header = reader.headers().unwrap().clone();
+    let keep: Vec<usize> = (0..header.len())
+        .filter(|&i| !header[i].starts_with("x."))
+        .collect();
+    let mut w = csv::Writer::from_path(log).unwrap();
+    w.write_record(keep.iter().map(|&i| &header[i])).unwrap();
+    for r in reader.records() {
+        let r = r.unwrap();
+        w.write_record(keep.iter().map(|&i| &r[i])).unwrap();
+    }
+    w.flush().unwrap();
+}
