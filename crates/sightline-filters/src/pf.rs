@@ -40,11 +40,14 @@
 //! 38(1), 2011), and between stages the cloud is resampled and moved by the regularisation
 //! kernel with Liu–West shrinkage ([`Jitter::Shrunk`], whatever jitter is configured for
 //! ordinary resampling): it keeps the cloud's mean and covariance, so repeated stages do not
-//! inflate the spread of unmeasured states. An update that keeps the ESS above F
-//! times its starting value runs in one stage, exactly as without the option. The likelihood
-//! increment is the sum of the stages' log mean weights. At most 32 stages; the last takes what
-//! is left of the exponent. Extra stages are counted in [`Diagnostics::tempered`]. The auxiliary
-//! variant does not temper (the spec refuses `temper` with `variant=auxiliary`).
+//! inflate the spread of unmeasured states. An update that keeps the ESS above F times its
+//! starting value runs in one stage, exactly as without the option. The likelihood
+//! increment is the sum of the stages' log mean weights (an approximation once a stage has
+//! moved the cloud: the move is not invariant for the tempered posterior, unlike the MCMC moves
+//! of an SMC sampler, so the product of the stages' means is no longer unbiased). At most 32
+//! stages; the last takes what is left of the exponent. Extra stages are counted in
+//! [`Diagnostics::tempered`]. The auxiliary variant does not temper (the spec refuses `temper`
+//! with `variant=auxiliary`).
 //!
 //! **Auxiliary variant.** At an update, the first stage weighs the look-ahead points
 //! μᵢ = f(xᵢ(k−1)) by λᵢ ∝ w̄ᵢ p(y | μᵢ), selects N ancestors aᵢ by λ with the chosen scheme and
@@ -322,8 +325,8 @@ where
     /// `(seed, initial)`).
     ///
     /// Fails, naming the setting, if the config is out of range (fewer than 2 particles, `ess`
-    /// outside [0, 1], a negative roughening constant, `temper` outside [0, 1)), if the plant has no state or no
-    /// measurement, or if the prior covariance is not positive semi-definite.
+    /// outside [0, 1], a negative roughening constant, `temper` outside [0, 1)), if the plant
+    /// has no state or no measurement, or if the prior covariance is not positive semi-definite.
     pub fn new(
         model: M,
         prior: Gaussian<M::State>,
