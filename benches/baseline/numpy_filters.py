@@ -122,6 +122,23 @@ def ukf(plant, t, u, y, alpha=1.0, beta=2.0, kappa=0.0):
     return means, sds
 
 
+def weigh(log_w, e, r):
+    """Adds the Gaussian log-likelihood of residuals e (variance r) to the log-weights and
+    normalises by log-sum-exp; returns the new log-weights and weights."""
+    log_w = log_w + (-0.5 * (math.log(r) + math.log(2.0 * math.pi)) - 0.5 / r * e * e)
+    top = log_w.max()
+    w = np.exp(log_w - top)
+    total = w.sum()
+    return log_w - (top + math.log(total)), w / total
+
+
+def systematic_ancestors(w, rng):
+    """Systematic resampling (Kitagawa 1996): ancestor indices for len(w) offspring."""
+    count = len(w)
+    positions = (np.arange(count) + rng.random()) / count
+    return np.minimum(np.searchsorted(np.cumsum(w), positions), count - 1)
+
+
 def bootstrap_pf(plant, t, u, y, particles, seed):
     """Weighted posterior means and standard deviations (steps × 2 each) of the bootstrap PF."""
     rng = np.random.default_rng(seed)
@@ -130,33 +147,23 @@ def bootstrap_pf(plant, t, u, y, particles, seed):
     log_w = np.full(count, -math.log(count))
     w = np.full(count, 1.0 / count)
     mean = x @ w
-    log_norm = -0.5 * (math.log(plant.r) + math.log(2.0 * math.pi))
     steps = len(t)
     means = np.empty((steps, 2))
     sds = np.empty((steps, 2))
-    offsets = np.arange(count)
     for k in range(steps):
         if k > 0:
             dt = t[k] - t[k - 1]
             factor = np.linalg.cholesky(plant.process_noise(mean, dt))
             x = plant.transition(x, u[k - 1], dt) + factor @ rng.standard_normal((2, count))
         if not math.isnan(y[k]):
-            e = y[k] - plant.measure(x)
-            log_w = log_w + (log_norm - 0.5 / plant.r * e * e)
-            top = log_w.max()
-            w = np.exp(log_w - top)
-            total = w.sum()
-            log_w -= top + math.log(total)
-            w /= total
+            log_w, w = weigh(log_w, y[k] - plant.measure(x), plant.r)
         mean = x @ w
         d = x - mean[:, None]
         cov = (d * w) @ d.T
         means[k] = mean
         sds[k] = np.sqrt(np.diag(cov))
         if 1.0 / (w @ w) < 0.5 * count:
-            positions = (offsets + rng.random()) / count
-            ancestors = np.minimum(np.searchsorted(np.cumsum(w), positions), count - 1)
-            x = x[:, ancestors]
+            x = x[:, systematic_ancestors(w, rng)]
             log_w = np.full(count, -math.log(count))
             w = np.full(count, 1.0 / count)
     return means, sds
@@ -186,31 +193,21 @@ def bootstrap_pf_ungm(plant, t, y, particles, seed):
     x = plant.x0 + math.sqrt(plant.p0) * rng.standard_normal(count)
     log_w = np.full(count, -math.log(count))
     w = np.full(count, 1.0 / count)
-    log_norm = -0.5 * (math.log(plant.r) + math.log(2.0 * math.pi))
     noise_sd = math.sqrt(plant.q)
     steps = len(t)
     means = np.empty((steps, 1))
     sds = np.empty((steps, 1))
-    offsets = np.arange(count)
     for k in range(steps):
         if k > 0:
             x = plant.transition(x, t[k]) + noise_sd * rng.standard_normal(count)
         if not math.isnan(y[k]):
-            e = y[k] - plant.measure(x)
-            log_w = log_w + (log_norm - 0.5 / plant.r * e * e)
-            top = log_w.max()
-            w = np.exp(log_w - top)
-            total = w.sum()
-            log_w -= top + math.log(total)
-            w /= total
+            log_w, w = weigh(log_w, y[k] - plant.measure(x), plant.r)
         mean = x @ w
         d = x - mean
         means[k, 0] = mean
         sds[k, 0] = math.sqrt((d * w) @ d)
         if 1.0 / (w @ w) < 0.5 * count:
-            positions = (offsets + rng.random()) / count
-            ancestors = np.minimum(np.searchsorted(np.cumsum(w), positions), count - 1)
-            x = x[ancestors]
+            x = x[systematic_ancestors(w, rng)]
             log_w = np.full(count, -math.log(count))
             w = np.full(count, 1.0 / count)
     return means, sds
