@@ -150,7 +150,58 @@ fn finite_range(values: impl Iterator<Item = f64>) -> (f64, f64) {
 /// Lower bound applied before taking log₁₀ (NEES/NIS of exactly 0 would be −∞).
 const LOG_FLOOR: f64 = 1e-6;
 
-fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Result<()> {
+/// Width of the legend column to the right of a line plot, in pixels: the legend sits beside
+/// the data, never on it (a legend inside the axes hid the end of rising level curves).
+const LEGEND_WIDTH: u32 = 210;
+
+/// How a legend entry is drawn.
+#[derive(Debug, Clone, Copy)]
+enum Glyph {
+    /// A filled square (a ±2σ band).
+    Band(ShapeStyle),
+    /// A dot (measurements).
+    Dot(RGBColor),
+    /// A short line (a mean, the truth, a bound).
+    Stroke(ShapeStyle),
+}
+
+/// Draws the legend entries top-down into `area` (pixel coordinates).
+fn draw_legend(
+    entries: &[(String, Glyph)],
+    area: &DrawingArea<SVGBackend<'_>, Shift>,
+) -> Result<()> {
+    let font = ("sans-serif", 12).into_font().color(&BLACK);
+    for (i, (name, glyph)) in entries.iter().enumerate() {
+        let y = 40 + 18 * i as i32;
+        match *glyph {
+            Glyph::Band(style) => area
+                .draw(&Rectangle::new([(8, y - 5), (24, y + 5)], style))
+                .map_err(plot_error)?,
+            Glyph::Dot(c) => area
+                .draw(&Circle::new((16, y), 3, c.filled()))
+                .map_err(plot_error)?,
+            Glyph::Stroke(style) => area
+                .draw(&PathElement::new(vec![(8, y), (24, y)], style))
+                .map_err(plot_error)?,
+        }
+        area.draw(&Text::new(name.as_str(), (30, y - 7), font.clone()))
+            .map_err(plot_error)?;
+    }
+    Ok(())
+}
+
+fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Result<()> {
+    let labelled = plot.areas.iter().any(|a| !a.name.is_empty())
+        || plot.dots.iter().any(|d| !d.0.is_empty())
+        || plot.lines.iter().any(|l| !l.name.is_empty());
+    let (area, legend_area) = if labelled {
+        let (w, _) = whole.dim_in_pixel();
+        let (left, right) = whole.split_horizontally(w.saturating_sub(LEGEND_WIDTH));
+        (left, Some(right))
+    } else {
+        (whole.clone(), None)
+    };
+    let mut legend: Vec<(String, Glyph)> = Vec::new();
     let ty = |v: f64| {
         if plot.log_y {
             v.max(LOG_FLOOR).log10()
@@ -176,7 +227,7 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         )
         .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| ty(p.1))));
     let (y0, y1) = finite_range(ys);
-    let mut chart = ChartBuilder::on(area)
+    let mut chart = ChartBuilder::on(&area)
         .caption(&plot.title, ("sans-serif", 18))
         .margin(8)
         .x_label_area_size(36)
@@ -204,7 +255,6 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         .light_line_style(RGBColor(235, 235, 235))
         .draw()
         .map_err(plot_error)?;
-    let mut legend = false;
     for a in &plot.areas {
         let pts: Vec<(f64, f64, f64)> = a
             .points
@@ -218,14 +268,11 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         let mut outline: Vec<(f64, f64)> = pts.iter().map(|p| (p.0, p.2)).collect();
         outline.extend(pts.iter().rev().map(|p| (p.0, p.1)));
         let style = a.colour.mix(a.opacity).filled();
-        let series = chart
+        chart
             .draw_series(std::iter::once(Polygon::new(outline, style)))
             .map_err(plot_error)?;
         if !a.name.is_empty() {
-            legend = true;
-            series
-                .label(a.name.as_str())
-                .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 16, y + 5)], style));
+            legend.push((a.name.clone(), Glyph::Band(style)));
         }
     }
     for (name, c, pts) in &plot.dots {
@@ -238,15 +285,15 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
         if pts.is_empty() {
             continue;
         }
-        legend = true;
         chart
             .draw_series(
                 pts.into_iter()
                     .map(|p| Circle::new(p, 2, c.mix(0.5).filled())),
             )
-            .map_err(plot_error)?
-            .label(name.as_str())
-            .legend(move |(x, y)| Circle::new((x + 8, y), 3, c.filled()));
+            .map_err(plot_error)?;
+        if !name.is_empty() {
+            legend.push((name.clone(), Glyph::Dot(c)));
+        }
     }
     for l in &plot.lines {
         let pts: Vec<(f64, f64)> = l
@@ -259,21 +306,15 @@ fn draw_lines(plot: &LinePlot, area: &DrawingArea<SVGBackend<'_>, Shift>) -> Res
             continue;
         }
         let style = l.colour.stroke_width(l.width);
-        legend = true;
         chart
             .draw_series(LineSeries::new(pts, style))
-            .map_err(plot_error)?
-            .label(l.name.as_str())
-            .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], style));
-    }
-    if legend {
-        chart
-            .configure_series_labels()
-            .background_style(WHITE.mix(0.85))
-            .border_style(RGBColor(180, 180, 180))
-            .position(SeriesLabelPosition::UpperRight)
-            .draw()
             .map_err(plot_error)?;
+        if !l.name.is_empty() {
+            legend.push((l.name.clone(), Glyph::Stroke(style)));
+        }
+    }
+    if let Some(legend_area) = legend_area {
+        draw_legend(&legend, &legend_area)?;
     }
     Ok(())
 }
