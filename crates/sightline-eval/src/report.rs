@@ -1024,6 +1024,35 @@ mod tests {
         assert!(svg.starts_with("<svg"), "{}", &svg[..40]);
         assert!(svg.contains("<polyline") || svg.contains("<path"));
         assert!(svg.contains("a&lt;b"), "legend text is escaped");
+        // The legend sits in its own column right of the axes (x ≥ WIDTH − LEGEND_WIDTH).
+        let texts: Vec<(f64, &str)> = svg
+            .split("<text ")
+            .skip(1)
+            .filter_map(|t| {
+                let x = t.split("x=\"").nth(1)?.split('"').next()?.parse().ok()?;
+                let body = t.split_once('>')?.1.split("</text>").next()?.trim();
+                Some((x, body))
+            })
+            .collect();
+        for label in ["a&lt;b", "band"] {
+            let &(x, _) = texts
+                .iter()
+                .find(|(_, body)| *body == label)
+                .unwrap_or_else(|| panic!("{label} drawn: {texts:?}"));
+            assert!(x >= f64::from(WIDTH - LEGEND_WIDTH), "{label} at x = {x}");
+        }
+        // ... and the data (the band, the one <polygon>) stays left of it.
+        let data_x = svg
+            .split("<polygon")
+            .skip(1)
+            .filter_map(|t| t.split("points=\"").nth(1)?.split('"').next())
+            .flat_map(|points| points.split_whitespace())
+            .filter_map(|p| p.split(',').next()?.parse::<f64>().ok())
+            .fold(f64::NEG_INFINITY, f64::max);
+        assert!(
+            data_x.is_finite() && data_x < f64::from(WIDTH - LEGEND_WIDTH),
+            "the band reaches x = {data_x}"
+        );
         let bars = Plot::Bars(BarPlot {
             id: "b".into(),
             title: "b".into(),
