@@ -209,7 +209,7 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
         // tails stay normal. Say so rather than leave the table to contradict the judgement.
         if !campaign {
             for f in &state_ok {
-                if let (Some(v), Some([_, hi]), Some([_, above])) =
+                if let (Some(v), Some([lo, hi]), Some([_, above])) =
                     (f.anees, f.anees_band, f.nees_tails)
                 {
                     if v > OUTLIER_DOMINATED * hi {
@@ -224,7 +224,7 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
                              mean (see its NEES plot; often the first updates from the prior).{}",
                             f.label,
                             sig(v, 3),
-                            sig(f.anees_band.map_or(f64::NAN, |b| b[0]), 3),
+                            sig(lo, 3),
                             sig(hi, 3),
                             sig(100.0 * above, 2),
                             hint

@@ -933,10 +933,23 @@ where
         t: f64,
         lik: &Likelihood<M::Meas>,
     ) -> Result<(), FilterError> {
-        let ys = y.as_slice();
         if self.config.temper > 0.0 {
-            return self.tempered_update(y, present, u, t, lik);
+            self.tempered_update(y, present, u, t, lik)
+        } else {
+            self.bootstrap_update(y, present, u, t, lik)
         }
+    }
+
+    /// The update in one stage: weigh by the whole likelihood, normalise, estimate.
+    fn bootstrap_update(
+        &mut self,
+        y: &OVector<f64, M::Meas>,
+        present: usize,
+        u: &[f64],
+        t: f64,
+        lik: &Likelihood<M::Meas>,
+    ) -> Result<(), FilterError> {
+        let ys = y.as_slice();
         let (mut max, mut valid_sum) =
             self.weigh(Source::Particles, Target::LogWeights, ys, u, t, lik);
         if !max.is_finite() {
@@ -966,13 +979,8 @@ where
         let (max_log_lik, valid_sum) =
             self.weigh(Source::Particles, Target::Scratch, ys, u, t, lik);
         if !max_log_lik.is_finite() {
-            // Every likelihood vanished: the untempered path reports or recovers the collapse.
-            let mut untempered = self.config;
-            untempered.temper = 0.0;
-            let saved = std::mem::replace(&mut self.config, untempered);
-            let outcome = self.sir_update(y, present, u, t, lik);
-            self.config = saved;
-            return outcome;
+            // Every likelihood vanished: the one-stage path reports or recovers the collapse.
+            return self.bootstrap_update(y, present, u, t, lik);
         }
         self.innovation_stats(y, present, valid_sum, &lik.r)?;
         let step = self.tag.step as u64;
