@@ -140,8 +140,7 @@ fn bench_jacobian<M: Model>(
     source: JacobianSource,
     name: &str,
 ) where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let x = model.prior().mean;
     let u = model.default_input();

@@ -3,7 +3,13 @@
 //! differentiation), sigma-point, particle and ensemble filters — and compare accuracy,
 //! statistical consistency, likelihood and cost side by side.
 //!
-//! This facade re-exports the workspace crates:
+//! A plant file starts with one `use`:
+//!
+//! ```
+//! use sightline::prelude::*;
+//! ```
+//!
+//! (see [`core::writing_a_plant`] for the idioms). This facade re-exports the workspace crates:
 //! - [`core`]: the [`Model`] trait, [`Gaussian`], RK4 and Van Loan discretisation, sigma-point
 //!   rules;
 //! - [`filters`]: the [`Filter`] trait and every filter family;
@@ -17,5 +23,10 @@ pub use sightline_filters as filters;
 pub use sightline_models as models;
 
 pub use sightline_core::{Gaussian, Model, Real, Variable, nalgebra, num_dual};
+
+/// Everything a plant needs: `use sightline::prelude::*;` (see [`sightline_core::prelude`]).
+pub mod prelude {
+    pub use sightline_core::prelude::*;
+}
 pub use sightline_eval::{AnyPlant, cli, plant, shipped};
 pub use sightline_filters::{Filter, FilterSpec};

@@ -101,8 +101,7 @@ fn relative_distance(a: &[f64], b: &[f64]) -> f64 {
 impl ModelVisitor for Soak {
     fn visit<M: Model>(&mut self, model: M)
     where
-        M::State: Differentiable,
-        DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+        DefaultAllocator: Alloc<M::State, M::Meas>,
     {
         if model.name() != self.model {
             return;

@@ -18,7 +18,7 @@ const GAUSSIAN: [&str; 7] = ["kf", "ekf", "iekf", "ukf", "ckf", "ghkf", "srukf"]
 fn filter<M: Model>(model: &M, spec: &str) -> Box<dyn Filter>
 where
     M::State: sightline::core::ad::Differentiable,
-    sightline::nalgebra::DefaultAllocator: sightline::core::Alloc<M::State, M::Meas, M::Input>,
+    sightline::nalgebra::DefaultAllocator: sightline::core::Alloc<M::State, M::Meas>,
 {
     build(model, &model.prior(), &FilterSpec::parse(spec).unwrap(), 0).unwrap()
 }

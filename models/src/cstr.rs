@@ -31,71 +31,57 @@
 //! The Arrhenius factor is undefined at T ≤ 0 K; such states are unphysical, and the simulator
 //! reports them as leaving the finite range. [`Model::project`] keeps concentrations ≥ 0.
 
-use sightline_core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
-use sightline_core::{Domain, Gaussian, Model, Parameter, Real, Variable, rk4, van_loan};
+use sightline_core::prelude::*;
 
 /// Longest RK4 substep, in seconds.
 const MAX_SUBSTEP_SECONDS: f64 = 0.5;
 
-/// Jacketed exothermic CSTR; every field is a `--set` parameter.
-#[derive(Debug, Clone, PartialEq)]
+/// Jacketed exothermic CSTR; every field is a `--set` parameter. The defaults are the textbook
+/// benchmark parameters (module docs).
+#[derive(Debug, Clone, PartialEq, Parameters)]
 pub struct Cstr {
-    /// Feed flow q (L/min).
+    /// Feed flow q.
+    #[param(default = 100.0, unit = "L/min", domain = Positive)]
     pub flow: f64,
-    /// Reactor volume V (L).
+    /// Reactor volume V.
+    #[param(default = 100.0, unit = "L", domain = Positive)]
     pub volume: f64,
-    /// Density ρ (g/L).
+    /// Density rho.
+    #[param(default = 1000.0, unit = "g/L", domain = Positive)]
     pub density: f64,
-    /// Heat capacity Cp (J/(g·K)).
+    /// Heat capacity Cp.
+    #[param(default = 0.239, unit = "J/(g K)", domain = Positive)]
     pub heat_capacity: f64,
-    /// Heat of reaction ΔH (J/mol; negative: exothermic).
+    /// Heat of reaction dH (negative: exothermic).
+    #[param(default = -5e4, unit = "J/mol", domain = Finite)]
     pub dh: f64,
-    /// Activation temperature E/R (K).
+    /// Activation temperature E/R.
+    #[param(default = 8750.0, unit = "K", domain = Positive)]
     pub e_over_r: f64,
-    /// Pre-exponential factor k0 (1/min).
+    /// Pre-exponential factor.
+    #[param(default = 7.2e10, unit = "1/min", domain = Positive)]
     pub k0: f64,
-    /// Jacket heat-transfer coefficient times area UA (J/(min·K)).
+    /// Jacket heat-transfer coefficient times area UA.
+    #[param(default = 5e4, unit = "J/(min K)", domain = NonNegative)]
     pub ua: f64,
-    /// Feed temperature Tf (K).
+    /// Feed temperature Tf.
+    #[param(default = 350.0, unit = "K", domain = Positive)]
     pub t_feed: f64,
-    /// Feed concentration CAf (mol/L).
+    /// Feed concentration CAf.
+    #[param(default = 1.0, unit = "mol/L", domain = NonNegative)]
     pub ca_feed: f64,
-    /// Sample time (s).
+    /// Sample time (the balances run in minutes: a step is dt/60 min).
+    #[param(default = 3.0, unit = "s", domain = Interval(1e-3, 3600.0))]
     pub dt: f64,
-    /// Spectral density of the concentration noise ((mol/L)²/min).
+    /// Spectral density of the concentration noise.
+    #[param(default = 1e-05, unit = "(mol/L)^2/min", domain = Positive)]
     pub qc_ca: f64,
-    /// Spectral density of the temperature noise (K²/min).
+    /// Spectral density of the temperature noise.
+    #[param(default = 0.1, unit = "K^2/min", domain = Positive)]
     pub qc_temp: f64,
-    /// Temperature sensor noise variance (K²).
+    /// Temperature sensor noise variance.
+    #[param(default = 0.1, unit = "K^2", domain = Positive)]
     pub r: f64,
-    /// Prior mean (CA, T).
-    pub x0: Vector2<f64>,
-    /// Prior standard deviations (CA, T).
-    pub sd0: Vector2<f64>,
-}
-
-impl Default for Cstr {
-    /// The textbook benchmark parameters (module docs).
-    fn default() -> Self {
-        Cstr {
-            flow: 100.0,
-            volume: 100.0,
-            density: 1000.0,
-            heat_capacity: 0.239,
-            dh: -5e4,
-            e_over_r: 8750.0,
-            k0: 7.2e10,
-            ua: 5e4,
-            t_feed: 350.0,
-            ca_feed: 1.0,
-            dt: 3.0,
-            qc_ca: 1e-5,
-            qc_temp: 0.1,
-            r: 0.1,
-            x0: Vector2::new(0.5, 350.0),
-            sd0: Vector2::new(0.01, 1.0),
-        }
-    }
 }
 
 impl Cstr {
@@ -105,7 +91,7 @@ impl Cstr {
     }
 
     /// Right-hand side of the balances, d(CA, T)/dt per minute, at coolant temperature `tc`.
-    pub fn derivative<S: Real>(&self, x: &Vector2<S>, tc: f64) -> Vector2<S> {
+    pub fn balances<S: Real>(&self, x: &Vector2<S>, tc: f64) -> Vector2<S> {
         let (ca, temp) = (x[0], x[1]);
         let dilution = self.flow / self.volume;
         let reaction = self.rate(temp) * ca;
@@ -141,38 +127,23 @@ impl Cstr {
 impl Model for Cstr {
     type State = U2;
     type Meas = U1;
-    type Input = U1;
 
-    fn name(&self) -> &str {
-        "cstr"
-    }
-    fn description(&self) -> &str {
-        "jacketed exothermic CSTR A->B, textbook benchmark parameters; temperature measured"
-    }
-    fn state_dim(&self) -> U2 {
-        U2
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U1 {
-        U1
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("ca", "mol/L"), Variable::new("temp", "K")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("temp", "K")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("tc", "K")]
+    fn declare(&self) -> Declaration {
+        Declaration::new("cstr", self.dt)
+            .describe("jacketed exothermic CSTR A->B, textbook benchmark parameters; temperature measured")
+            .state("ca", "mol/L", 0.5, 0.01)
+            .state("temp", "K", 350.0, 1.0)
+            .measurement("temp", "K")
+            .input("tc", "K", 300.0)
     }
 
-    /// One sample of `dt` seconds = dt/60 minutes of the balances.
-    fn transition<S: Real>(&self, x: &Vector2<S>, u: &Vector1<f64>, t: f64, dt: f64) -> Vector2<S> {
+    /// One sample of `dt` seconds = dt/60 minutes of the balances (written per minute, as
+    /// published, so the transition is integrated here rather than from a per-second
+    /// `derivative`).
+    fn transition<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64, dt: f64) -> Vector2<S> {
         let tc = u[0];
         rk4(
-            |_t, x: &Vector2<S>| self.derivative(x, tc),
+            |_t, x: &Vector2<S>| self.balances(x, tc),
             x,
             t / 60.0,
             dt / 60.0,
@@ -180,165 +151,18 @@ impl Model for Cstr {
         )
     }
 
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
-        Vector1::new(x[1])
-    }
-
-    fn process_noise(&self, x: &Vector2<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> Matrix2<f64> {
+    /// Van Loan on the balances linearised at `x`, over dt/60 minutes.
+    fn process_noise(&self, x: &Vector2<f64>, _u: &[f64], _t: f64, dt: f64) -> Matrix2<f64> {
         let qc = Matrix2::new(self.qc_ca, 0.0, 0.0, self.qc_temp);
         van_loan(&self.derivative_jacobian(x), &qc, dt / 60.0).1
     }
 
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
+        Vector1::new(x[1])
+    }
+
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
         Matrix1::new(self.r)
-    }
-
-    fn prior(&self) -> Gaussian<U2> {
-        Gaussian::new(
-            self.x0,
-            Matrix2::from_diagonal(&self.sd0.component_mul(&self.sd0)),
-        )
-    }
-
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(300.0)
-    }
-
-    fn dt(&self) -> f64 {
-        self.dt
-    }
-
-    fn parameters(&self) -> Vec<Parameter> {
-        vec![
-            Parameter::new("flow", self.flow, "L/min", Domain::Positive, "feed flow q"),
-            Parameter::new(
-                "volume",
-                self.volume,
-                "L",
-                Domain::Positive,
-                "reactor volume V",
-            ),
-            Parameter::new(
-                "density",
-                self.density,
-                "g/L",
-                Domain::Positive,
-                "density rho",
-            ),
-            Parameter::new(
-                "heat_capacity",
-                self.heat_capacity,
-                "J/(g K)",
-                Domain::Positive,
-                "heat capacity Cp",
-            ),
-            Parameter::new(
-                "dh",
-                self.dh,
-                "J/mol",
-                Domain::Finite,
-                "heat of reaction dH (negative: exothermic)",
-            ),
-            Parameter::new(
-                "e_over_r",
-                self.e_over_r,
-                "K",
-                Domain::Positive,
-                "activation temperature E/R",
-            ),
-            Parameter::new(
-                "k0",
-                self.k0,
-                "1/min",
-                Domain::Positive,
-                "pre-exponential factor",
-            ),
-            Parameter::new(
-                "ua",
-                self.ua,
-                "J/(min K)",
-                Domain::NonNegative,
-                "jacket heat-transfer coefficient times area UA",
-            ),
-            Parameter::new(
-                "t_feed",
-                self.t_feed,
-                "K",
-                Domain::Positive,
-                "feed temperature Tf",
-            ),
-            Parameter::new(
-                "ca_feed",
-                self.ca_feed,
-                "mol/L",
-                Domain::NonNegative,
-                "feed concentration CAf",
-            ),
-            Parameter::new(
-                "dt",
-                self.dt,
-                "s",
-                Domain::Interval(1e-3, 3600.0),
-                "sample time (the balances run in minutes: a step is dt/60 min)",
-            ),
-            Parameter::new(
-                "qc_ca",
-                self.qc_ca,
-                "(mol/L)^2/min",
-                Domain::Positive,
-                "spectral density of the concentration noise",
-            ),
-            Parameter::new(
-                "qc_temp",
-                self.qc_temp,
-                "K^2/min",
-                Domain::Positive,
-                "spectral density of the temperature noise",
-            ),
-            Parameter::new(
-                "r",
-                self.r,
-                "K^2",
-                Domain::Positive,
-                "temperature sensor noise variance",
-            ),
-            Parameter::new(
-                "sd0.ca",
-                self.sd0[0],
-                "mol/L",
-                Domain::Positive,
-                "prior standard deviation of ca",
-            ),
-            Parameter::new(
-                "sd0.temp",
-                self.sd0[1],
-                "K",
-                Domain::Positive,
-                "prior standard deviation of temp",
-            ),
-        ]
-    }
-
-    fn apply_parameter(&mut self, name: &str, value: f64) {
-        match name {
-            "flow" => self.flow = value,
-            "volume" => self.volume = value,
-            "density" => self.density = value,
-            "heat_capacity" => self.heat_capacity = value,
-            "dh" => self.dh = value,
-            "e_over_r" => self.e_over_r = value,
-            "k0" => self.k0 = value,
-            "ua" => self.ua = value,
-            "t_feed" => self.t_feed = value,
-            "ca_feed" => self.ca_feed = value,
-            "dt" => self.dt = value,
-            "qc_ca" => self.qc_ca = value,
-            "qc_temp" => self.qc_temp = value,
-            "r" => self.r = value,
-            "sd0.ca" => self.sd0[0] = value,
-            "sd0.temp" => self.sd0[1] = value,
-            _ => {}
-        }
     }
 
     /// A concentration cannot be negative: clamps `ca` to ≥ 0.
@@ -355,14 +179,14 @@ mod tests {
     struct Balances<'a>(&'a Cstr, f64);
     impl VectorFunction<U2, U2> for Balances<'_> {
         fn eval<S: Real>(&self, x: &Vector2<S>) -> Vector2<S> {
-            self.0.derivative(x, self.1)
+            self.0.balances(x, self.1)
         }
     }
 
     #[test]
     fn textbook_operating_point_is_an_unstable_equilibrium() {
         let plant = Cstr::default();
-        let tc = plant.default_input()[0];
+        let tc = plant.declare().default_input()[0];
         assert_eq!(tc, 300.0);
         // Newton's method on the balances from the textbook point (CA, T) = (0.5 mol/L, 350 K)
         // at Tc = 300 K (textbook value, from memory).
@@ -371,7 +195,7 @@ mod tests {
             let (f, jac) = U2::jacobian(&Balances(&plant, tc), &x);
             x -= jac.lu().solve(&f).unwrap();
         }
-        assert!(plant.derivative(&x, tc).norm() < 1e-10);
+        assert!(plant.balances(&x, tc).norm() < 1e-10);
         // The textbook values are rounded to the digits shown.
         assert!((x[0] - 0.5).abs() < 5e-4, "CA = {}", x[0]);
         assert!((x[1] - 350.0).abs() < 0.05, "T = {}", x[1]);
@@ -402,7 +226,7 @@ mod tests {
         struct Step<'a>(&'a Cstr, f64);
         impl VectorFunction<U2, U2> for Step<'_> {
             fn eval<S: Real>(&self, x: &Vector2<S>) -> Vector2<S> {
-                self.0.transition(x, &Vector1::new(self.1), 0.0, self.0.dt)
+                self.0.transition(x, &[self.1], 0.0, self.0.dt)
             }
         }
         U2::jacobian(&Step(plant, tc), x).1
@@ -414,11 +238,11 @@ mod tests {
         // integration of the per-minute equations over 1 min (RK4 converges at fourth order,
         // Hairer, Nørsett & Wanner, §II.1).
         let plant = Cstr::default();
-        let u = Vector1::new(300.0);
+        let u = [300.0];
         let x = Vector2::new(0.6, 345.0);
         let step = plant.transition(&x, &u, 0.0, 60.0);
         let fine = rk4(
-            |_t, x: &Vector2<f64>| plant.derivative(x, 300.0),
+            |_t, x: &Vector2<f64>| plant.balances(x, 300.0),
             &x,
             0.0,
             1.0,
@@ -433,7 +257,7 @@ mod tests {
             x = plant.transition(&x, &u, k as f64 * plant.dt, plant.dt);
         }
         assert!((x[1] - 350.0).abs() > 10.0, "{x}");
-        assert!(plant.derivative(&x, 300.0).norm() < 1e-6, "{x}");
+        assert!(plant.balances(&x, 300.0).norm() < 1e-6, "{x}");
         let eig = plant.derivative_jacobian(&x).complex_eigenvalues();
         assert!(eig.iter().all(|l| l.re < 0.0), "{eig:?}");
     }

@@ -15,14 +15,13 @@
 //! | [`tankchain`] | h1..hn (n at run time) | hn | Torricelli cascade, `Dyn` states |
 //!
 //! ```
-//! use sightline_core::Model;
+//! use sightline_core::prelude::*;
 //! use sightline_models::QuadTank;
 //! let plant = QuadTank::default();
-//! assert_eq!(plant.states().len(), 4);
+//! assert_eq!(plant.declare().states().len(), 4);
 //! assert!(plant.parameters().iter().any(|p| p.name == "gamma1"));
 //! ```
 
-use sightline_core::ad::Differentiable;
 use sightline_core::nalgebra::DefaultAllocator;
 use sightline_core::{Alloc, Model};
 
@@ -51,8 +50,7 @@ pub trait ModelVisitor {
     /// Receives one model.
     fn visit<M: Model>(&mut self, model: M)
     where
-        M::State: Differentiable,
-        DefaultAllocator: Alloc<M::State, M::Meas, M::Input>;
+        DefaultAllocator: Alloc<M::State, M::Meas>;
 }
 
 /// Hands every shipped model, with its default parameters, to `visitor` — the model registry.

@@ -24,8 +24,7 @@
 //! O(dt/T) correction from the dynamics — so that the model's own cost stays O(n) per step and the
 //! benchmarks measure the filters, not a Van Loan exponential of a 64×64 matrix.
 
-use sightline_core::nalgebra::{DMatrix, DVector, Dyn, Matrix1, U1, Vector1};
-use sightline_core::{Domain, Gaussian, Model, Parameter, Real, Variable, rk4};
+use sightline_core::prelude::*;
 
 use crate::torricelli::outflow;
 
@@ -36,45 +35,38 @@ const MAX_SUBSTEP: f64 = 1.0;
 pub const MAX_TANKS: i64 = 512;
 
 /// A chain of gravity-drained tanks; every field is a `--set` parameter.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Parameters)]
 pub struct TankChain {
-    /// Number of tanks.
+    /// Number of tanks (the state dimension).
+    #[param(default = 8, unit = "-", domain = Integer(1, MAX_TANKS))]
     pub n: usize,
-    /// Cross-section of every tank (cm²).
+    /// Cross-section of every tank.
+    #[param(default = 28.0, unit = "cm^2", domain = Positive)]
     pub area: f64,
-    /// Cross-section of every outlet (cm²).
+    /// Cross-section of every outlet hole.
+    #[param(default = 0.071, unit = "cm^2", domain = Positive)]
     pub outlet: f64,
-    /// Pump gain (cm³/(V·s)).
+    /// Pump gain k.
+    #[param(default = 3.33, unit = "cm^3/(V s)", domain = Positive)]
     pub pump_gain: f64,
-    /// Gravitational acceleration (cm/s²).
+    /// Gravitational acceleration.
+    #[param(default = 981.0, unit = "cm/s^2", domain = Positive)]
     pub g: f64,
-    /// Sample time (s).
+    /// Sample time.
+    #[param(default = 1.0, unit = "s", domain = Interval(1e-3, 600.0))]
     pub dt: f64,
-    /// Spectral density of the white level noise in every tank (cm²/s).
+    /// Spectral density of the white level noise in each tank.
+    #[param(default = 1e-3, unit = "cm^2/s", domain = Positive)]
     pub qc: f64,
-    /// Variance of the level sensor noise (cm²).
+    /// Variance of the level sensor noise.
+    #[param(default = 1e-2, unit = "cm^2", domain = Positive)]
     pub r: f64,
-    /// Smoothing level ε of the outflow law at an empty tank (cm).
+    /// Level below which the outflow law is smoothed towards zero flow.
+    #[param(default = 1e-3, unit = "cm", domain = Interval(1e-6, 1.0))]
     pub h_smooth: f64,
-    /// Prior standard deviation of every level (cm).
+    /// Prior standard deviation of every level (`sd0.<state>` sets one level's).
+    #[param(default = 1.0, unit = "cm", domain = Positive)]
     pub sd0: f64,
-}
-
-impl Default for TankChain {
-    fn default() -> Self {
-        TankChain {
-            n: 8,
-            area: 28.0,
-            outlet: 0.071,
-            pump_gain: 3.33,
-            g: 981.0,
-            dt: 1.0,
-            qc: 1e-3,
-            r: 1e-2,
-            h_smooth: 1e-3,
-            sd0: 1.0,
-        }
-    }
 }
 
 impl TankChain {
@@ -88,19 +80,6 @@ impl TankChain {
 
     /// Pump voltage used when none is set (V).
     pub const DEFAULT_VOLTAGE: f64 = 3.0;
-
-    /// Continuous-time dynamics dh/dt (cm/s) under pump voltage `v`.
-    pub fn derivative<S: Real>(&self, h: &DVector<S>, v: f64) -> DVector<S> {
-        let q = |h: S| outflow(self.outlet, self.g, h, self.h_smooth);
-        let mut inflow = S::from(self.pump_gain * v);
-        let mut d = DVector::from_element(h.len(), S::from(0.0));
-        for (di, &hi) in d.iter_mut().zip(h.iter()) {
-            let out = q(hi);
-            *di = (inflow - out) / self.area;
-            inflow = out;
-        }
-        d
-    }
 
     /// The level every tank settles at under voltage `v`: (k·v/a)²/(2g), from the balance
     /// k·v = a·√(2g·h) tank by tank.
@@ -121,163 +100,55 @@ impl TankChain {
 impl Model for TankChain {
     type State = Dyn;
     type Meas = U1;
-    type Input = U1;
 
-    fn name(&self) -> &str {
-        "tankchain"
+    fn declare(&self) -> Declaration {
+        let level = self.steady_level(Self::DEFAULT_VOLTAGE);
+        let mut d = Declaration::new("tankchain", self.dt).describe(
+            "cascade of n gravity-drained tanks (n set at run time); last level measured",
+        );
+        for i in 1..=self.n {
+            d = d.state(format!("h{i}"), "cm", level, self.sd0);
+        }
+        d.measurement("level", "cm")
+            .input("v", "V", Self::DEFAULT_VOLTAGE)
     }
-    fn description(&self) -> &str {
-        "cascade of n gravity-drained tanks (n set at run time); last level measured"
-    }
+
+    /// The state dimension without building the declaration (called on every step).
     fn state_dim(&self) -> Dyn {
         Dyn(self.n)
     }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U1 {
-        U1
-    }
-    fn states(&self) -> Vec<Variable> {
-        (1..=self.n)
-            .map(|i| Variable::new(format!("h{i}"), "cm"))
-            .collect()
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("level", "cm")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("v", "V")]
+
+    /// dh/dt (cm/s) under pump voltage `u[0]`.
+    fn derivative<S: Real>(&self, h: &DVector<S>, u: &[f64], _t: f64) -> DVector<S> {
+        let q = |h: S| outflow(self.outlet, self.g, h, self.h_smooth);
+        let mut inflow = S::from(self.pump_gain * u[0]);
+        let mut d = DVector::from_element(h.len(), S::from(0.0));
+        for (di, &hi) in d.iter_mut().zip(h.iter()) {
+            let out = q(hi);
+            *di = (inflow - out) / self.area;
+            inflow = out;
+        }
+        d
     }
 
-    fn transition<S: Real>(&self, x: &DVector<S>, u: &Vector1<f64>, t: f64, dt: f64) -> DVector<S> {
-        let v = u[0];
-        rk4(
-            |_t, h: &DVector<S>| self.derivative(h, v),
-            x,
-            t,
-            dt,
-            self.substeps(dt),
-        )
+    /// RK4 with substeps bounded as in [`crate::quadtank`].
+    fn integrator(&self, dt: f64) -> Integrator {
+        Integrator::Rk4 {
+            substeps: self.substeps(dt),
+        }
     }
 
-    fn measure<S: Real>(&self, x: &DVector<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
-        Vector1::new(x.as_slice().last().copied().unwrap_or(S::from(0.0)))
-    }
-
-    fn process_noise(&self, x: &DVector<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> DMatrix<f64> {
+    /// Q = qc·dt·I (module docs: the model's own cost stays O(n) per step).
+    fn process_noise(&self, x: &DVector<f64>, _u: &[f64], _t: f64, dt: f64) -> DMatrix<f64> {
         DMatrix::from_diagonal_element(x.len(), x.len(), self.qc * dt)
+    }
+
+    fn measure<S: Real>(&self, x: &DVector<S>, _u: &[f64], _t: f64) -> Vector1<S> {
+        Vector1::new(x.as_slice().last().copied().unwrap_or(S::from(0.0)))
     }
 
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
         Matrix1::new(self.r)
-    }
-
-    fn prior(&self) -> Gaussian<Dyn> {
-        Gaussian::new(
-            DVector::from_element(self.n, self.steady_level(Self::DEFAULT_VOLTAGE)),
-            DMatrix::from_diagonal_element(self.n, self.n, self.sd0 * self.sd0),
-        )
-    }
-
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(Self::DEFAULT_VOLTAGE)
-    }
-
-    fn dt(&self) -> f64 {
-        self.dt
-    }
-
-    fn parameters(&self) -> Vec<Parameter> {
-        vec![
-            Parameter::new(
-                "n",
-                self.n as f64,
-                "-",
-                Domain::Integer(1, MAX_TANKS),
-                "number of tanks (the state dimension)",
-            ),
-            Parameter::new(
-                "area",
-                self.area,
-                "cm^2",
-                Domain::Positive,
-                "cross-section of every tank",
-            ),
-            Parameter::new(
-                "outlet",
-                self.outlet,
-                "cm^2",
-                Domain::Positive,
-                "cross-section of every outlet hole",
-            ),
-            Parameter::new(
-                "pump_gain",
-                self.pump_gain,
-                "cm^3/(V s)",
-                Domain::Positive,
-                "pump gain k",
-            ),
-            Parameter::new(
-                "g",
-                self.g,
-                "cm/s^2",
-                Domain::Positive,
-                "gravitational acceleration",
-            ),
-            Parameter::new(
-                "dt",
-                self.dt,
-                "s",
-                Domain::Interval(1e-3, 600.0),
-                "sample time",
-            ),
-            Parameter::new(
-                "qc",
-                self.qc,
-                "cm^2/s",
-                Domain::Positive,
-                "spectral density of the white level noise in each tank",
-            ),
-            Parameter::new(
-                "r",
-                self.r,
-                "cm^2",
-                Domain::Positive,
-                "variance of the level sensor noise",
-            ),
-            Parameter::new(
-                "h_smooth",
-                self.h_smooth,
-                "cm",
-                Domain::Interval(1e-6, 1.0),
-                "level below which the outflow law is smoothed towards zero flow",
-            ),
-            Parameter::new(
-                "sd0",
-                self.sd0,
-                "cm",
-                Domain::Positive,
-                "prior standard deviation of every level",
-            ),
-        ]
-    }
-
-    fn apply_parameter(&mut self, name: &str, value: f64) {
-        match name {
-            // Validated as a whole number in [1, MAX_TANKS] before this is called.
-            "n" => self.n = value as usize,
-            "area" => self.area = value,
-            "outlet" => self.outlet = value,
-            "pump_gain" => self.pump_gain = value,
-            "g" => self.g = value,
-            "dt" => self.dt = value,
-            "qc" => self.qc = value,
-            "r" => self.r = value,
-            "h_smooth" => self.h_smooth = value,
-            "sd0" => self.sd0 = value,
-            _ => {}
-        }
     }
 
     /// Levels cannot be negative: clamps each to ≥ 0.
@@ -296,7 +167,7 @@ mod tests {
     struct Step<'a>(&'a TankChain, f64);
     impl VectorFunction<Dyn, Dyn> for Step<'_> {
         fn eval<S: Real>(&self, x: &DVector<S>) -> DVector<S> {
-            self.0.transition(x, &Vector1::new(self.1), 0.0, self.0.dt)
+            self.0.transition(x, &[self.1], 0.0, self.0.dt)
         }
     }
 
@@ -306,7 +177,7 @@ mod tests {
         // run from empty tanks matches it to 0.1 %.
         let plant = TankChain::with_tanks(8);
         let v = 2.0;
-        let u = Vector1::new(v);
+        let u = [v];
         let level = plant.steady_level(v);
         let mut x = DVector::zeros(8);
         for k in 0..40_000 {
@@ -327,7 +198,7 @@ mod tests {
         // A·Σ dhᵢ/dt = k·v − a√(2g·hₙ): internal flows cancel (conservation of volume).
         let plant = TankChain::with_tanks(6);
         let h = DVector::from_vec(vec![3.0, 0.0, 12.0, 7.5, 1e-4, 9.0]);
-        let d = plant.derivative(&h, 2.5);
+        let d = plant.derivative(&h, &[2.5], 0.0);
         let total = d.sum() * plant.area;
         let expected = plant.pump_gain * 2.5 - outflow(plant.outlet, plant.g, 9.0, plant.h_smooth);
         assert!((total - expected).abs() < 1e-12, "{total} vs {expected}");
@@ -340,14 +211,14 @@ mod tests {
         let (value, ad) = Dyn::jacobian(&Step(&plant, 3.0), &x);
         assert_eq!(
             value,
-            plant.transition(&x, &Vector1::new(3.0), 0.0, plant.dt)
+            plant.transition(&x, &[3.0], 0.0, plant.dt)
         );
         assert_eq!(ad.shape(), (5, 5));
         let delta = 1e-5;
         for j in 0..5 {
             let mut e = DVector::zeros(5);
             e[j] = delta;
-            let u = Vector1::new(3.0);
+            let u = [3.0];
             let fd = (plant.transition(&(&x + &e), &u, 0.0, plant.dt)
                 - plant.transition(&(&x - &e), &u, 0.0, plant.dt))
                 / (2.0 * delta);
@@ -365,13 +236,13 @@ mod tests {
     #[test]
     fn dimension_follows_n() {
         let mut plant = TankChain::default();
-        plant.apply_parameter("n", 33.0);
+        plant.set_parameter("n", 33.0).unwrap();
         assert_eq!(plant.state_dim(), Dyn(33));
-        assert_eq!(plant.states().len(), 33);
-        assert_eq!(plant.states()[32].name, "h33");
+        assert_eq!(plant.declare().states().len(), 33);
+        assert_eq!(plant.declare().states()[32].name, "h33");
         assert_eq!(plant.prior().mean.len(), 33);
         let x = plant.prior().mean;
-        let u = plant.default_input();
+        let u = plant.declare().default_input().to_vec();
         assert_eq!(plant.transition(&x, &u, 0.0, 1.0).len(), 33);
         assert_eq!(plant.process_noise(&x, &u, 0.0, 1.0).shape(), (33, 33));
         assert_eq!(plant.measure(&x, &u, 0.0)[0], x[32]);

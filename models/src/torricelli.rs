@@ -17,17 +17,12 @@
 //! cancellation-free form ε²/(2(√(h² + ε²) − h)), the same analytic function, so it stays
 //! positive for any finite level.
 
-use sightline_core::Real;
+use sightline_core::prelude::*;
 
-/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are.
+/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are: the
+/// smooth maximum of `h` and 0 with width ε ([`Real::smooth_max`]).
 pub fn smooth_level<S: Real>(h: S, eps: f64) -> S {
-    let s = (h * h + eps * eps).sqrt();
-    if h.re() >= 0.0 {
-        (h + s) * 0.5
-    } else {
-        // Same function, written without the cancellation of h + s for h < 0.
-        (s - h).recip() * (eps * eps * 0.5)
-    }
+    h.smooth_max(0.0, eps)
 }
 
 /// Outflow a·√(2g·ĥ(h)) of an outlet of area `a` at level `h` (cm³/s for cm, cm², cm/s²).

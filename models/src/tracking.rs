@@ -26,14 +26,7 @@
 //! own position. Defaults are a scenario of our own: a target circling at 15 m/s on a 750 m
 //! radius around a point 250 m from the sensor, so the bearing sweeps through ±π.
 
-use sightline_core::model::wrap_angle;
-use sightline_core::nalgebra::{
-    Dyn, Matrix2, Matrix5, OMatrix, SVector, U0, U2, U5, Vector2, Vector5,
-};
-use sightline_core::{Domain, Gaussian, Model, Parameter, Real, Variable, van_loan};
-
-/// The empty input vector of an autonomous plant.
-type NoInput = SVector<f64, 0>;
+use sightline_core::prelude::*;
 
 /// Below this |θ| = |ω·dt| the turn ratios are evaluated by their series.
 const SERIES_BELOW: f64 = 0.1;
@@ -46,7 +39,7 @@ const SERIES_BELOW: f64 = 0.1;
 /// assert!((sin_over(0.5f64) - 0.5f64.sin() / 0.5).abs() < 1e-16);
 /// ```
 pub fn sin_over<S: Real>(theta: S) -> S {
-    if theta.re().abs() < SERIES_BELOW {
+    if theta.value().abs() < SERIES_BELOW {
         let t2 = theta * theta;
         // 1 − θ²/3! + θ⁴/5! − θ⁶/7! + θ⁸/9!
         ((((t2 * (1.0 / 362_880.0) - 1.0 / 5040.0) * t2 + 1.0 / 120.0) * t2 - 1.0 / 6.0) * t2) + 1.0
@@ -57,7 +50,7 @@ pub fn sin_over<S: Real>(theta: S) -> S {
 
 /// (1 − cos θ) / θ, smooth through θ = 0 (series: Abramowitz & Stegun 4.3.66).
 pub fn one_minus_cos_over<S: Real>(theta: S) -> S {
-    if theta.re().abs() < SERIES_BELOW {
+    if theta.value().abs() < SERIES_BELOW {
         let t2 = theta * theta;
         // θ/2! − θ³/4! + θ⁵/6! − θ⁷/8! + θ⁹/10!
         (((((t2 * (1.0 / 3_628_800.0) - 1.0 / 40_320.0) * t2 + 1.0 / 720.0) * t2 - 1.0 / 24.0)
@@ -74,62 +67,41 @@ pub fn one_minus_cos_over<S: Real>(theta: S) -> S {
 /// atan2(dy, dx) with derivatives (dx·d(dy) − dy·d(dx))/(dx² + dy²) that stay finite when either
 /// component is zero (num-dual's `atan2` differentiates atan(dy/dx), which fails at dx = 0).
 pub fn bearing<S: Real>(dy: S, dx: S) -> S {
-    let value = dy.re().atan2(dx.re());
-    let smooth = if dx.re().abs() >= dy.re().abs() {
+    let value = dy.value().atan2(dx.value());
+    let smooth = if dx.value().abs() >= dy.value().abs() {
         (dy / dx).atan()
     } else {
         -(dx / dy).atan()
     };
     // Same derivatives; shift the value onto the right branch.
-    smooth + (value - smooth.re())
+    smooth + (value - smooth.value())
 }
 
 /// Nearly-constant-turn target with a range–bearing sensor; every field is a `--set` parameter.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Parameters)]
 pub struct Tracking {
-    /// Sample time (s).
+    /// Sample time.
+    #[param(default = 1.0, unit = "s", domain = Positive)]
     pub dt: f64,
-    /// Spectral density of the white accelerations in x and y (m²/s³).
+    /// Spectral density of the white accelerations in x and y.
+    #[param(default = 0.04, unit = "m^2/s^3", domain = Positive)]
     pub q: f64,
-    /// Spectral density of the white turn-rate derivative (rad²/s³).
+    /// Spectral density of the white turn-rate derivative.
+    #[param(default = 1e-8, unit = "rad^2/s^3", domain = Positive)]
     pub q_omega: f64,
-    /// Range noise variance (m²).
+    /// Range noise variance.
+    #[param(default = 25.0, unit = "m^2", domain = Positive)]
     pub r_range: f64,
-    /// Bearing noise variance (rad²).
+    /// Bearing noise variance.
+    #[param(default = 1e-4, unit = "rad^2", domain = Positive)]
     pub r_bearing: f64,
-    /// Sensor position (m).
-    pub sensor: Vector2<f64>,
-    /// Prior mean (px, py, vx, vy, omega).
-    pub x0: Vector5<f64>,
-    /// Prior standard deviations.
-    pub sd0: Vector5<f64>,
+    /// Sensor x position.
+    #[param(default = 0.0, unit = "m", domain = Finite)]
+    pub sensor_x: f64,
+    /// Sensor y position.
+    #[param(default = 0.0, unit = "m", domain = Finite)]
+    pub sensor_y: f64,
 }
-
-impl Default for Tracking {
-    fn default() -> Self {
-        Tracking {
-            dt: 1.0,
-            q: 0.04,
-            q_omega: 1e-8,
-            r_range: 25.0,
-            r_bearing: 1e-4,
-            sensor: Vector2::new(0.0, 0.0),
-            x0: Vector5::new(1000.0, 0.0, 0.0, 15.0, 0.02),
-            sd0: Vector5::new(20.0, 20.0, 1.0, 1.0, 0.002),
-        }
-    }
-}
-
-const STATE_NAMES: [&str; 5] = ["px", "py", "vx", "vy", "omega"];
-const STATE_UNITS: [&str; 5] = ["m", "m", "m/s", "m/s", "rad/s"];
-const SD0_NAMES: [&str; 5] = ["sd0.px", "sd0.py", "sd0.vx", "sd0.vy", "sd0.omega"];
-const SD0_ABOUT: [&str; 5] = [
-    "prior standard deviation of px",
-    "prior standard deviation of py",
-    "prior standard deviation of vx",
-    "prior standard deviation of vy",
-    "prior standard deviation of omega",
-];
 
 impl Tracking {
     /// Jacobian of the continuous turn dynamics (ṗ = v, v̇ = ω × v, ω̇ = 0) at `x`.
@@ -150,38 +122,20 @@ impl Tracking {
 impl Model for Tracking {
     type State = U5;
     type Meas = U2;
-    type Input = U0;
 
-    fn name(&self) -> &str {
-        "tracking"
-    }
-    fn description(&self) -> &str {
-        "2-D nearly-constant-turn target (Bar-Shalom et al. 2001, 11.7); range and bearing measured"
-    }
-    fn state_dim(&self) -> U5 {
-        U5
-    }
-    fn meas_dim(&self) -> U2 {
-        U2
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        STATE_NAMES
-            .iter()
-            .zip(STATE_UNITS)
-            .map(|(n, u)| Variable::new(*n, u))
-            .collect()
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("range", "m"), Variable::new("bearing", "rad")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
+    fn declare(&self) -> Declaration {
+        Declaration::new("tracking", self.dt)
+            .describe("2-D nearly-constant-turn target (Bar-Shalom et al. 2001, 11.7); range and bearing measured")
+            .state("px", "m", 1000.0, 20.0)
+            .state("py", "m", 0.0, 20.0)
+            .state("vx", "m/s", 0.0, 1.0)
+            .state("vy", "m/s", 15.0, 1.0)
+            .state("omega", "rad/s", 0.02, 0.002)
+            .measurement("range", "m")
+            .measurement("bearing", "rad")
     }
 
-    fn transition<S: Real>(&self, x: &Vector5<S>, _u: &NoInput, _t: f64, dt: f64) -> Vector5<S> {
+    fn transition<S: Real>(&self, x: &Vector5<S>, _u: &[f64], _t: f64, dt: f64) -> Vector5<S> {
         let (px, py, vx, vy, w) = (x[0], x[1], x[2], x[3], x[4]);
         let theta = w * dt;
         let a = sin_over(theta) * dt;
@@ -196,34 +150,19 @@ impl Model for Tracking {
         )
     }
 
-    fn measure<S: Real>(&self, x: &Vector5<S>, _u: &NoInput, _t: f64) -> Vector2<S> {
-        let dx = x[0] - self.sensor[0];
-        let dy = x[1] - self.sensor[1];
-        Vector2::new((dx * dx + dy * dy).sqrt(), bearing(dy, dx))
-    }
-
-    fn process_noise(&self, x: &Vector5<f64>, _u: &NoInput, _t: f64, dt: f64) -> Matrix5<f64> {
+    fn process_noise(&self, x: &Vector5<f64>, _u: &[f64], _t: f64, dt: f64) -> Matrix5<f64> {
         let qc = Matrix5::from_diagonal(&Vector5::new(0.0, 0.0, self.q, self.q, self.q_omega));
         van_loan(&Self::derivative_jacobian(x), &qc, dt).1
     }
 
+    fn measure<S: Real>(&self, x: &Vector5<S>, _u: &[f64], _t: f64) -> Vector2<S> {
+        let dx = x[0] - self.sensor_x;
+        let dy = x[1] - self.sensor_y;
+        Vector2::new((dx * dx + dy * dy).sqrt(), bearing(dy, dx))
+    }
+
     fn measurement_noise(&self, _t: f64) -> Matrix2<f64> {
         Matrix2::new(self.r_range, 0.0, 0.0, self.r_bearing)
-    }
-
-    fn prior(&self) -> Gaussian<U5> {
-        Gaussian::new(
-            self.x0,
-            Matrix5::from_diagonal(&self.sd0.component_mul(&self.sd0)),
-        )
-    }
-
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-
-    fn dt(&self) -> f64 {
-        self.dt
     }
 
     /// y − ŷ with the bearing component wrapped into (−π, π].
@@ -242,81 +181,6 @@ impl Model for Tracking {
         }
         Vector2::new(range, sin.atan2(cos))
     }
-
-    fn parameters(&self) -> Vec<Parameter> {
-        let mut p = vec![
-            Parameter::new("dt", self.dt, "s", Domain::Positive, "sample time"),
-            Parameter::new(
-                "q",
-                self.q,
-                "m^2/s^3",
-                Domain::Positive,
-                "spectral density of the white accelerations in x and y",
-            ),
-            Parameter::new(
-                "q_omega",
-                self.q_omega,
-                "rad^2/s^3",
-                Domain::Positive,
-                "spectral density of the white turn-rate derivative",
-            ),
-            Parameter::new(
-                "r_range",
-                self.r_range,
-                "m^2",
-                Domain::Positive,
-                "range noise variance",
-            ),
-            Parameter::new(
-                "r_bearing",
-                self.r_bearing,
-                "rad^2",
-                Domain::Positive,
-                "bearing noise variance",
-            ),
-            Parameter::new(
-                "sensor_x",
-                self.sensor[0],
-                "m",
-                Domain::Finite,
-                "sensor x position",
-            ),
-            Parameter::new(
-                "sensor_y",
-                self.sensor[1],
-                "m",
-                Domain::Finite,
-                "sensor y position",
-            ),
-        ];
-        for i in 0..5 {
-            p.push(Parameter::new(
-                SD0_NAMES[i],
-                self.sd0[i],
-                STATE_UNITS[i],
-                Domain::Positive,
-                SD0_ABOUT[i],
-            ));
-        }
-        p
-    }
-
-    fn apply_parameter(&mut self, name: &str, value: f64) {
-        if let Some(i) = SD0_NAMES.iter().position(|n| *n == name) {
-            self.sd0[i] = value;
-            return;
-        }
-        match name {
-            "dt" => self.dt = value,
-            "q" => self.q = value,
-            "q_omega" => self.q_omega = value,
-            "r_range" => self.r_range = value,
-            "r_bearing" => self.r_bearing = value,
-            "sensor_x" => self.sensor[0] = value,
-            "sensor_y" => self.sensor[1] = value,
-            _ => {}
-        }
-    }
 }
 
 #[cfg(test)]
@@ -329,13 +193,13 @@ mod tests {
     struct Step<'a>(&'a Tracking);
     impl VectorFunction<U5, U5> for Step<'_> {
         fn eval<S: Real>(&self, x: &Vector5<S>) -> Vector5<S> {
-            self.0.transition(x, &NoInput::zeros(), 0.0, self.0.dt)
+            self.0.transition(x, &[], 0.0, self.0.dt)
         }
     }
     struct Sense<'a>(&'a Tracking);
     impl VectorFunction<U5, U2> for Sense<'_> {
         fn eval<S: Real>(&self, x: &Vector5<S>) -> Vector2<S> {
-            self.0.measure(x, &NoInput::zeros(), 0.0)
+            self.0.measure(x, &[], 0.0)
         }
     }
 
@@ -351,7 +215,7 @@ mod tests {
         let centre = Vector2::new(1000.0 - 15.0 / w, 0.0);
         let mut x = start;
         for _ in 0..steps {
-            x = plant.transition(&x, &NoInput::zeros(), 0.0, plant.dt);
+            x = plant.transition(&x, &[], 0.0, plant.dt);
             let radius = (Vector2::new(x[0], x[1]) - centre).norm();
             assert!((radius - 15.0 / w).abs() < 1e-9, "radius {radius}");
         }
@@ -363,7 +227,7 @@ mod tests {
         // ω = 0: straight flight, p⁺ = p + v·dt exactly (BLK 2001, §11.7 limit).
         let plant = Tracking::default();
         let x = Vector5::new(3.0, -4.0, 10.0, -2.0, 0.0);
-        let next = plant.transition(&x, &NoInput::zeros(), 0.0, 2.0);
+        let next = plant.transition(&x, &[], 0.0, 2.0);
         assert_eq!(next, Vector5::new(23.0, -8.0, 10.0, -2.0, 0.0));
         // and the Jacobian there is the limit: ∂px⁺/∂ω = −vy·dt²/2, ∂py⁺/∂ω = vx·dt²/2,
         // ∂vx⁺/∂ω = −vy·dt, ∂vy⁺/∂ω = vx·dt (differentiating the series at θ = 0).
@@ -421,7 +285,7 @@ mod tests {
                 let delta = if j == 4 { 1e-6 } else { 1e-4 };
                 let mut e = Vector5::zeros();
                 e[j] = delta;
-                let u = NoInput::zeros();
+                let u: [f64; 0] = [];
                 let fd = (plant.transition(&(x + e), &u, 0.0, plant.dt)
                     - plant.transition(&(x - e), &u, 0.0, plant.dt))
                     / (2.0 * delta);
@@ -442,7 +306,8 @@ mod tests {
         // ∂β/∂px = −dy/r², ∂β/∂py = dx/r², ∂r/∂p = (dx, dy)/r (closed form), including
         // a target due north (dx = 0), where atan(dy/dx) cannot be differentiated.
         let plant = Tracking {
-            sensor: Vector2::new(10.0, -5.0),
+            sensor_x: 10.0,
+            sensor_y: -5.0,
             ..Tracking::default()
         };
         for (dx, dy) in [(0.0, 300.0), (0.0, -300.0), (-400.0, 0.0), (120.0, -50.0)] {

@@ -5,9 +5,11 @@
 //! filters and with dual numbers in the extended filters, which get exact Jacobians by automatic
 //! differentiation ([`Differentiable`]).
 //!
-//! This crate owns the model trait, the [`Gaussian`] type, the fixed-step RK4 integrator
-//! ([`rk4`]), Van Loan's discretisation of process noise ([`van_loan`]), the sigma-point rules
-//! ([`SigmaRule`]), seeded random streams ([`rng`]) and the error types.
+//! This crate owns the model trait, the [`Gaussian`] type, the fixed-step integrators ([`rk4`],
+//! [`Integrator`]), Van Loan's discretisation of process noise ([`van_loan`]), the sigma-point
+//! rules ([`SigmaRule`]), seeded random streams ([`rng`]) and the error types. A plant file
+//! starts with `use sightline_core::prelude::*;` ([`prelude`]); the section
+//! [Writing a plant](writing_a_plant) shows the idioms and the traps.
 
 pub mod ad;
 pub mod chi2;
@@ -17,18 +19,21 @@ pub mod integrate;
 pub mod linalg;
 pub mod model;
 pub mod params;
+pub mod prelude;
 pub mod real;
 pub mod rng;
 pub mod sigma;
 pub mod vanloan;
+pub mod writing_a_plant;
 
 pub use ad::Differentiable;
 pub use error::{NumericError, ParamError};
 pub use gaussian::Gaussian;
-pub use integrate::rk4;
-pub use model::{Alloc, Model, Variable};
-pub use params::{Domain, Parameter};
-pub use real::Real;
+pub use integrate::{Integrator, rk4};
+pub use model::{Alloc, Declaration, Model, Variable, noise_through};
+pub use params::{Domain, Parameter, Parameters};
+pub use sightline_derive::Parameters;
+pub use real::{C, Real, c};
 pub use sigma::{SigmaPoints, SigmaRule};
 pub use vanloan::van_loan;
 

@@ -3,23 +3,25 @@
 use nalgebra::allocator::Allocator;
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector, U1};
 
+use crate::ad::{Differentiable, VectorFunction};
 use crate::gaussian::Gaussian;
-use crate::params::Parameter;
+use crate::integrate::Integrator;
+use crate::params::Parameters;
 use crate::real::Real;
+use crate::vanloan::van_loan;
 
-/// Every matrix shape a filter needs for a plant with `N` states, `M` measurements and `U` inputs.
+/// Every matrix shape a filter needs for a plant with `N` states and `M` measurements.
 ///
-/// This is a bundle of nalgebra allocator bounds: writing `DefaultAllocator: Alloc<N, M, U>` in a
+/// This is a bundle of nalgebra allocator bounds: writing `DefaultAllocator: Alloc<N, M>` in a
 /// `where` clause implies all of them. It holds for every static size (`U2`, `Const<5>`) and for
 /// `Dyn`, so generic code never lists the shapes one by one.
-pub trait Alloc<N: Dim, M: Dim, U: Dim>:
+pub trait Alloc<N: Dim, M: Dim>:
     Allocator<N>
     + Allocator<N, N>
     + Allocator<M>
     + Allocator<M, M>
     + Allocator<N, M>
     + Allocator<M, N>
-    + Allocator<U>
     + Allocator<U1, N>
     + Allocator<U1, M>
     + Allocator<N, Dyn>
@@ -27,14 +29,13 @@ pub trait Alloc<N: Dim, M: Dim, U: Dim>:
 {
 }
 
-impl<N: Dim, M: Dim, U: Dim, T> Alloc<N, M, U> for T where
+impl<N: Dim, M: Dim, T> Alloc<N, M> for T where
     T: Allocator<N>
         + Allocator<N, N>
         + Allocator<M>
         + Allocator<M, M>
         + Allocator<N, M>
         + Allocator<M, N>
-        + Allocator<U>
         + Allocator<U1, N>
         + Allocator<U1, M>
         + Allocator<N, Dyn>
@@ -61,132 +62,339 @@ impl Variable {
     }
 }
 
-/// A discrete-time stochastic plant with additive Gaussian noise:
+/// What a plant is, as data: its name, sample time, states (with the prior's mean and spread),
+/// measurements and inputs (with their default values), declared once in [`Model::declare`].
+///
+/// ```
+/// use sightline_core::Declaration;
+/// let d = Declaration::new("pendulum", 0.01)
+///     .describe("damped pendulum; bob's horizontal position measured")
+///     .state("angle", "rad", 0.6, 0.1)
+///     .state("rate", "rad/s", 0.0, 0.2)
+///     .measurement("position", "m")
+///     .input("torque", "rad/s^2", 0.0);
+/// assert_eq!(d.states()[1].name, "rate");
+/// assert_eq!(d.prior_sd(), [0.1, 0.2]);
+/// assert_eq!(d.default_input(), [0.0]);
+/// ```
+#[derive(Debug, Clone, PartialEq)]
+pub struct Declaration {
+    name: String,
+    description: String,
+    dt: f64,
+    states: Vec<Variable>,
+    prior_mean: Vec<f64>,
+    prior_sd: Vec<f64>,
+    measurements: Vec<Variable>,
+    inputs: Vec<Variable>,
+    default_input: Vec<f64>,
+}
+
+impl Declaration {
+    /// A plant called `name` (its name on the command line) with nominal sample time `dt`
+    /// seconds (used by the simulator and steady-state gain design).
+    pub fn new(name: impl Into<String>, dt: f64) -> Self {
+        Declaration {
+            name: name.into(),
+            description: String::new(),
+            dt,
+            states: Vec::new(),
+            prior_mean: Vec::new(),
+            prior_sd: Vec::new(),
+            measurements: Vec::new(),
+            inputs: Vec::new(),
+            default_input: Vec::new(),
+        }
+    }
+
+    /// One line saying what the plant is and where its parameters come from.
+    pub fn describe(mut self, description: impl Into<String>) -> Self {
+        self.description = description.into();
+        self
+    }
+
+    /// The next state, with the prior's mean and standard deviation for it (the defaults of
+    /// `--set x0.<name>` and `--set sd0.<name>`).
+    pub fn state(
+        mut self,
+        name: impl Into<String>,
+        unit: impl Into<String>,
+        prior_mean: f64,
+        prior_sd: f64,
+    ) -> Self {
+        self.states.push(Variable::new(name, unit));
+        self.prior_mean.push(prior_mean);
+        self.prior_sd.push(prior_sd);
+        self
+    }
+
+    /// The next measurement.
+    pub fn measurement(mut self, name: impl Into<String>, unit: impl Into<String>) -> Self {
+        self.measurements.push(Variable::new(name, unit));
+        self
+    }
+
+    /// The next input, with the value used where the data has no column for it (the default of
+    /// `--set u.<name>`).
+    pub fn input(mut self, name: impl Into<String>, unit: impl Into<String>, default: f64) -> Self {
+        self.inputs.push(Variable::new(name, unit));
+        self.default_input.push(default);
+        self
+    }
+
+    /// Short name used on the command line.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+    /// One-line description ("" if none was given).
+    pub fn description(&self) -> &str {
+        &self.description
+    }
+    /// Nominal sample time (s).
+    pub fn dt(&self) -> f64 {
+        self.dt
+    }
+    /// States in model order.
+    pub fn states(&self) -> &[Variable] {
+        &self.states
+    }
+    /// Prior mean of each state.
+    pub fn prior_mean(&self) -> &[f64] {
+        &self.prior_mean
+    }
+    /// Prior standard deviation of each state.
+    pub fn prior_sd(&self) -> &[f64] {
+        &self.prior_sd
+    }
+    /// Measurements in model order.
+    pub fn measurements(&self) -> &[Variable] {
+        &self.measurements
+    }
+    /// Inputs in model order.
+    pub fn inputs(&self) -> &[Variable] {
+        &self.inputs
+    }
+    /// The input used where the data has none.
+    pub fn default_input(&self) -> &[f64] {
+        &self.default_input
+    }
+}
+
+/// Compile-time guards of the two ways to write a plant's dynamics: a default that is reached
+/// only when a plant defines neither form fails the build with these messages.
+struct Undefined<M: ?Sized>(std::marker::PhantomData<M>);
+
+impl<M: ?Sized> Undefined<M> {
+    const DYNAMICS: () = panic!(
+        "this plant defines neither `transition` (discrete time) nor `derivative` (continuous \
+         time); implement one of them in its `impl Model`"
+    );
+    const NOISE: () = panic!(
+        "this plant defines neither `process_noise` (discrete time) nor `noise_density` \
+         (continuous time); implement one of them in its `impl Model`"
+    );
+}
+
+/// The right-hand side `x ↦ f(x, u, t)` of a continuous-time plant, for its linearisation.
+struct RightHandSide<'a, M> {
+    model: &'a M,
+    u: &'a [f64],
+    t: f64,
+}
+
+impl<M: Model> VectorFunction<M::State, M::State> for RightHandSide<'_, M>
+where
+    DefaultAllocator: Alloc<M::State, M::Meas>,
+{
+    fn eval<S: Real>(&self, x: &OVector<S, M::State>) -> OVector<S, M::State> {
+        self.model.derivative(x, self.u, self.t)
+    }
+}
+
+/// A stochastic plant with additive Gaussian noise, in discrete or in continuous time.
 ///
 /// ```text
-/// x(k+1) = f(x(k), u(k), t(k), dt) + w(k),   w ~ N(0, Q(x, dt))
-/// y(k)   = h(x(k), u(k), t(k))     + v(k),   v ~ N(0, R)
+/// discrete time:    x(k+1) = f(x(k), u(k), t(k), dt) + w(k),    w ~ N(0, Q(x, u, t, dt))
+/// continuous time:  dx/dt  = f(x, u, t) + w(t),                 w white, spectral density Qc
+/// both:             y(k)   = h(x(k), u(k), t(k)) + v(k),        v ~ N(0, R(t))
 /// ```
 ///
-/// `transition` and `measure` are generic over the scalar `S: Real`, so the same code is evaluated
-/// with `f64` (sigma-point, particle and ensemble filters, the simulator) and with dual numbers
-/// (exact Jacobians for the extended filters). Continuous-time plants implement `transition` with
-/// [`crate::rk4`] and `process_noise` with [`crate::van_loan`].
+/// # The required core
 ///
-/// Dimensions are nalgebra type-level sizes (`U2`, `Const<5>`), so small plants run on the stack
-/// with no heap traffic, or `Dyn` for plants whose size is chosen at run time.
+/// Seven items, whichever time base the plant uses:
 ///
-/// Only the first block of methods is required; the hooks below have defaults that suit plants
-/// whose states and measurements live in a plain vector space.
+/// | item | what |
+/// |---|---|
+/// | `type State` | state dimension (`U2`, `Const<5>`, or `Dyn` for sizes chosen at run time) |
+/// | `type Meas` | measurement dimension |
+/// | [`Model::declare`] | name, sample time, states with the prior, measurements, inputs — as data |
+/// | [`Model::measure`] | `h(x, u, t)`, generic over the scalar |
+/// | [`Model::measurement_noise`] | `R(t)` |
+/// | [`Model::transition`] **or** [`Model::derivative`] | `f` in discrete or in continuous time |
+/// | [`Model::process_noise`] **or** [`Model::noise_density`] | `Q` over a step, or `Qc` |
+///
+/// A continuous-time plant gets its transition by integrating `derivative` ([`Model::integrator`]:
+/// RK4, one step per sample by default) and its `Q` by Van Loan's method from `Qc` and the
+/// Jacobian of `derivative` at the current state, taken by automatic differentiation — no
+/// hand-written Jacobian, no hand-written discretisation. A plant that defines neither form
+/// of a pair does not build: the default of one calls the other, which stops the compiler with
+/// a message saying what to implement.
+///
+/// Parameters come from the [`Parameters`] supertrait (`#[derive(Parameters)]`), the prior
+/// mean and spread of every state from the declaration (overridable as `x0.<state>` and
+/// `sd0.<state>` on the command line for every plant), inputs are plain `&[f64]` in declaration
+/// order (a plant without inputs declares none and ignores `u`).
+///
+/// `transition`, `measure` and `derivative` are generic over the scalar `S: Real`, so one body
+/// is evaluated with `f64` (sigma-point, particle and ensemble filters, the simulator) and with
+/// dual numbers (exact Jacobians for the extended filters). Dimensions are nalgebra type-level
+/// sizes, so small plants run on the stack with no heap traffic. Everything else has a default:
+/// the provided methods below are hooks for angles, constraints and hand-written Jacobians.
 ///
 /// ```
-/// use sightline_core::nalgebra::{Matrix1, Vector1, U1};
-/// use sightline_core::{Gaussian, Model, Real, Variable};
+/// use sightline_core::prelude::*;
 ///
 /// /// A scalar random walk seen directly.
-/// #[derive(Clone)]
+/// #[derive(Clone, Parameters)]
 /// struct Drift;
 ///
 /// impl Model for Drift {
 ///     type State = U1;
 ///     type Meas = U1;
-///     type Input = U1;
-///     fn name(&self) -> &str { "drift" }
-///     fn state_dim(&self) -> U1 { U1 }
-///     fn meas_dim(&self) -> U1 { U1 }
-///     fn input_dim(&self) -> U1 { U1 }
-///     fn states(&self) -> Vec<Variable> { vec![Variable::new("level", "m")] }
-///     fn measurements(&self) -> Vec<Variable> { vec![Variable::new("level", "m")] }
-///     fn inputs(&self) -> Vec<Variable> { vec![Variable::new("unused", "-")] }
-///     fn transition<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64, _dt: f64) -> Vector1<S> { *x }
-///     fn measure<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> { *x }
-///     fn process_noise(&self, _x: &Vector1<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> Matrix1<f64> { Matrix1::new(0.01 * dt) }
-///     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> { Matrix1::new(0.25) }
-///     fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
-///     fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
-///     fn dt(&self) -> f64 { 1.0 }
+///     fn declare(&self) -> Declaration {
+///         Declaration::new("drift", 1.0).state("level", "m", 0.0, 1.0).measurement("level", "m")
+///     }
+///     fn transition<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector1<S> {
+///         *x
+///     }
+///     fn process_noise(&self, _x: &Vector1<f64>, _u: &[f64], _t: f64, dt: f64) -> Matrix1<f64> {
+///         Matrix1::new(0.01 * dt)
+///     }
+///     fn measure<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64) -> Vector1<S> {
+///         *x
+///     }
+///     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
+///         Matrix1::new(0.25)
+///     }
 /// }
-/// let y = Drift.measure(&Vector1::new(2.0_f64), &Vector1::new(0.0), 0.0);
+/// let y = Drift.measure(&Vector1::new(2.0_f64), &[], 0.0);
 /// assert_eq!(y[0], 2.0);
+/// assert_eq!(Drift.prior().cov[(0, 0)], 1.0);
 /// ```
-pub trait Model: Clone + Send + Sync + 'static
+pub trait Model: Parameters + Clone + Send + Sync + 'static
 where
-    DefaultAllocator: Alloc<Self::State, Self::Meas, Self::Input>,
+    DefaultAllocator: Alloc<Self::State, Self::Meas>,
 {
     /// State dimension (`U2`, ..., or `Dyn`).
-    type State: Dim;
+    type State: Differentiable;
     /// Measurement dimension.
     type Meas: Dim;
-    /// Input dimension (use `U1` with one unused input for autonomous plants, or `U0`).
-    type Input: Dim;
 
-    /// Short name used on the command line (`sightline compare NAME ...`).
-    fn name(&self) -> &str;
-    /// One line saying what the plant is and where its parameters come from.
-    fn description(&self) -> &str {
-        ""
-    }
-    /// Number of states, as a dimension value (`U2` or `Dyn(n)`).
-    fn state_dim(&self) -> Self::State;
-    /// Number of measurements.
-    fn meas_dim(&self) -> Self::Meas;
-    /// Number of inputs.
-    fn input_dim(&self) -> Self::Input;
-    /// States in model order, with units.
-    fn states(&self) -> Vec<Variable>;
-    /// Measurements in model order, with units.
-    fn measurements(&self) -> Vec<Variable>;
-    /// Inputs in model order, with units.
-    fn inputs(&self) -> Vec<Variable>;
-
-    /// Mean of the next state given the current one: `f(x, u, t, dt)`.
-    fn transition<S: Real>(
-        &self,
-        x: &OVector<S, Self::State>,
-        u: &OVector<f64, Self::Input>,
-        t: f64,
-        dt: f64,
-    ) -> OVector<S, Self::State>;
+    /// Name, sample time, states (with the prior), measurements and inputs, as data.
+    fn declare(&self) -> Declaration;
 
     /// Noise-free measurement `h(x, u, t)`.
     fn measure<S: Real>(
         &self,
         x: &OVector<S, Self::State>,
-        u: &OVector<f64, Self::Input>,
+        u: &[f64],
         t: f64,
     ) -> OVector<S, Self::Meas>;
-
-    /// Covariance Q of the additive process noise over a step of length `dt` starting at `x`.
-    fn process_noise(
-        &self,
-        x: &OVector<f64, Self::State>,
-        u: &OVector<f64, Self::Input>,
-        t: f64,
-        dt: f64,
-    ) -> OMatrix<f64, Self::State, Self::State>;
 
     /// Covariance R of the additive measurement noise.
     fn measurement_noise(&self, t: f64) -> OMatrix<f64, Self::Meas, Self::Meas>;
 
-    /// The initial Gaussian belief about the state (also what the simulator draws the truth from).
-    fn prior(&self) -> Gaussian<Self::State>;
+    // ---- dynamics: `transition` + `process_noise` (discrete) or `derivative` + `noise_density`
 
-    /// Input used when the data has no input column and none is set (`--set u.<input>=value`).
-    fn default_input(&self) -> OVector<f64, Self::Input>;
-
-    /// Nominal sample time in seconds, used by the simulator and steady-state gain design.
-    fn dt(&self) -> f64;
-
-    // ---- optional hooks -------------------------------------------------------------------
-
-    /// Parameters with their current values, units and domains (`sightline models`, `--set`).
-    fn parameters(&self) -> Vec<Parameter> {
-        Vec::new()
+    /// Mean of the next state given the current one: `f(x, u, t, dt)`. Discrete-time plants
+    /// write it; continuous-time plants get it from [`Model::derivative`] and
+    /// [`Model::integrator`].
+    fn transition<S: Real>(
+        &self,
+        x: &OVector<S, Self::State>,
+        u: &[f64],
+        t: f64,
+        dt: f64,
+    ) -> OVector<S, Self::State> {
+        self.integrator(dt)
+            .integrate(|t, x| self.derivative(x, u, t), x, t, dt)
     }
 
-    /// Sets a parameter. Called only with a name from [`Model::parameters`] and a value inside its
-    /// domain (see [`crate::params::validate`]), so implementations need not check again.
-    fn apply_parameter(&mut self, _name: &str, _value: f64) {}
+    /// Covariance Q of the additive process noise over a step of length `dt` starting at `x`.
+    /// Discrete-time plants write it; continuous-time plants get
+    /// `Q = ∫₀^dt e^{As} Qc e^{Aᵀs} ds` by Van Loan's method ([`van_loan`]) with
+    /// `A = ∂f/∂x` at `x` by automatic differentiation and `Qc` from [`Model::noise_density`].
+    fn process_noise(
+        &self,
+        x: &OVector<f64, Self::State>,
+        u: &[f64],
+        t: f64,
+        dt: f64,
+    ) -> OMatrix<f64, Self::State, Self::State> {
+        let (_, a) = Self::State::jacobian(&RightHandSide { model: self, u, t }, x);
+        van_loan(&a, &self.noise_density(x, u, t), dt).1
+    }
+
+    /// Right-hand side `dx/dt = f(x, u, t)` of a continuous-time plant (per second).
+    fn derivative<S: Real>(
+        &self,
+        x: &OVector<S, Self::State>,
+        _u: &[f64],
+        _t: f64,
+    ) -> OVector<S, Self::State> {
+        let () = Undefined::<Self>::DYNAMICS;
+        x.clone()
+    }
+
+    /// Spectral density Qc of the white process noise of a continuous-time plant, in state
+    /// coordinates (for noise entering through a matrix G, return `G Qc Gᵀ`:
+    /// [`crate::noise_through`]).
+    fn noise_density(
+        &self,
+        x: &OVector<f64, Self::State>,
+        _u: &[f64],
+        _t: f64,
+    ) -> OMatrix<f64, Self::State, Self::State> {
+        let () = Undefined::<Self>::NOISE;
+        let (n, _) = x.shape_generic();
+        OMatrix::zeros_generic(n, n)
+    }
+
+    /// How [`Model::derivative`] is integrated over a step of `dt` (default: one RK4 step).
+    fn integrator(&self, _dt: f64) -> Integrator {
+        Integrator::default()
+    }
+
+    // ---- derived from the declaration ---------------------------------------------------------
+
+    /// Number of states, as a dimension value: from the type for static sizes; `Dyn` plants
+    /// should override it cheaply (the default counts the declared states).
+    fn state_dim(&self) -> Self::State {
+        let n = Self::State::try_to_usize().unwrap_or_else(|| self.declare().states().len());
+        Self::State::from_usize(n)
+    }
+
+    /// Number of measurements, as a dimension value (from the type for static sizes).
+    fn meas_dim(&self) -> Self::Meas {
+        let m = Self::Meas::try_to_usize().unwrap_or_else(|| self.declare().measurements().len());
+        Self::Meas::from_usize(m)
+    }
+
+    /// The initial Gaussian belief about the state (also what the simulator draws the truth
+    /// from): the declared means, independent with the declared standard deviations.
+    fn prior(&self) -> Gaussian<Self::State> {
+        let d = self.declare();
+        let n = self.state_dim();
+        let mean = OVector::<f64, Self::State>::from_fn_generic(n, U1, |i, _| {
+            d.prior_mean().get(i).copied().unwrap_or(0.0)
+        });
+        let sd = OVector::<f64, Self::State>::from_fn_generic(n, U1, |i, _| {
+            d.prior_sd().get(i).copied().unwrap_or(0.0)
+        });
+        Gaussian::new(mean, OMatrix::from_diagonal(&sd.component_mul(&sd)))
+    }
+
+    // ---- optional hooks -------------------------------------------------------------------
 
     /// Whether `transition` is affine in `x` and `measure` affine in `x` (the `kf` requirement).
     fn is_linear(&self) -> bool {
@@ -239,7 +447,7 @@ where
     fn transition_jacobian(
         &self,
         _x: &OVector<f64, Self::State>,
-        _u: &OVector<f64, Self::Input>,
+        _u: &[f64],
         _t: f64,
         _dt: f64,
     ) -> Option<OMatrix<f64, Self::State, Self::State>> {
@@ -250,11 +458,31 @@ where
     fn measurement_jacobian(
         &self,
         _x: &OVector<f64, Self::State>,
-        _u: &OVector<f64, Self::Input>,
+        _u: &[f64],
         _t: f64,
     ) -> Option<OMatrix<f64, Self::Meas, Self::State>> {
         None
     }
+}
+
+/// `G Qc Gᵀ`: the spectral density in state coordinates of white noise of density `qc` that
+/// enters the dynamics through the noise-input matrix `g` (n × p), for
+/// [`Model::noise_density`].
+///
+/// ```
+/// use sightline_core::prelude::*;
+/// // A force on the second state only: G = (0, 1)ᵀ.
+/// let qc = noise_through(&Vector2::new(0.0, 1.0), &Matrix1::new(0.3));
+/// assert_eq!(qc, Matrix2::new(0.0, 0.0, 0.0, 0.3));
+/// ```
+pub fn noise_through<N: Dim, P: Dim>(
+    g: &OMatrix<f64, N, P>,
+    qc: &OMatrix<f64, P, P>,
+) -> OMatrix<f64, N, N>
+where
+    DefaultAllocator: Allocator<N, P> + Allocator<P, P> + Allocator<N, N> + Allocator<P, N>,
+{
+    g * qc * g.transpose()
 }
 
 /// `Σ wᵢ·pointsᵢ` over the columns of `points`, without heap allocation for static row counts.

@@ -35,7 +35,8 @@ pub struct Cli {
 pub struct PlantArgs {
     /// Model name (see `sightline models`).
     pub model: String,
-    /// Set a model parameter, a prior mean (`x0.<state>`) or a constant input (`u.<input>`).
+    /// Set a model parameter, a prior mean (`x0.<state>`) or standard deviation (`sd0.<state>`),
+    /// or a constant input (`u.<input>`).
     #[arg(long = "set", value_name = "NAME=VALUE")]
     pub set: Vec<String>,
 }
@@ -194,8 +195,8 @@ pub fn parse_set(item: &str) -> Result<(String, f64)> {
 
 /// Finds a plant by name and applies the `--set` overrides.
 ///
-/// Model parameters are applied before prior means (`x0.`) and inputs (`u.`), each group in the
-/// order given, so that a parameter that sizes the plant (`tankchain`'s `n`) may come anywhere
+/// Model parameters are applied before prior means (`x0.`), prior standard deviations (`sd0.`)
+/// and inputs (`u.`), each group in the order given, so that a parameter that sizes the plant (`tankchain`'s `n`) may come anywhere
 /// on the command line.
 pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<dyn AnyPlant>> {
     let Some(found) = plants.iter().find(|p| p.name() == args.model) else {
@@ -215,8 +216,12 @@ pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<d
         .iter()
         .map(|item| parse_set(item))
         .collect::<Result<Vec<_>>>()?;
-    // Stable: parameters first, then x0./u. overrides, each in command-line order.
-    sets.sort_by_key(|(name, _)| name.starts_with("x0.") || name.starts_with("u."));
+    // Stable: parameters first, then x0./sd0./u. overrides, each in command-line order.
+    sets.sort_by_key(|(name, _)| {
+        ["x0.", "sd0.", "u."]
+            .iter()
+            .any(|prefix| name.starts_with(prefix))
+    });
     for (name, value) in sets {
         plant.set(&name, value)?;
     }

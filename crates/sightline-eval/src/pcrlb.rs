@@ -19,7 +19,6 @@
 
 use nalgebra::{DMatrix, DefaultAllocator, Dim, OMatrix, OVector, U1};
 use serde::{Deserialize, Serialize};
-use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 use sightline_filters::JacobianSource;
@@ -59,27 +58,28 @@ where
 /// recursion; [`bound_from_terms`] runs it.
 pub fn information_terms<M: Model>(model: &M, truth: &Dataset) -> Result<Vec<Vec<f64>>>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let n = model.state_dim();
+    let declaration = model.declare();
+    let (name, inputs) = (declaration.name(), declaration.inputs().len());
     let numeric =
-        |e: NumericError| Error::Run(format!("Cramér–Rao bound of '{}': {e}", model.name()));
+        |e: NumericError| Error::Run(format!("Cramér–Rao bound of '{name}': {e}"));
     let mut rows = Vec::with_capacity(truth.records.len());
-    let mut previous: Option<(f64, OVector<f64, M::State>, OVector<f64, M::Input>)> = None;
+    let mut previous: Option<(f64, OVector<f64, M::State>, &[f64])> = None;
     for (k, rec) in truth.records.iter().enumerate() {
         let Some(x) = &rec.x else {
             return Err(Error::Run(format!(
                 "Cramér–Rao bound: row {k} has no true state"
             )));
         };
-        if x.len() != n.value() || rec.u.len() != model.input_dim().value() {
+        if x.len() != n.value() || rec.u.len() != inputs {
             return Err(Error::Run(format!(
                 "Cramér–Rao bound: row {k} does not match the plant's state or input size"
             )));
         }
         let x = OVector::<f64, M::State>::from_column_slice_generic(n, U1, x);
-        let u = OVector::<f64, M::Input>::from_column_slice_generic(model.input_dim(), U1, &rec.u);
+        let u = rec.u.as_slice();
         let mut d11 = OMatrix::<f64, M::State, M::State>::zeros_generic(n, n);
         let mut d12 = d11.clone();
         let mut d22 = d11.clone();
@@ -97,7 +97,7 @@ where
             d22 += &q_inv;
         }
         // Measurement information over the present components only.
-        let (_, mut h) = measurement_jacobian(model, &x, &u, rec.t, JacobianSource::Automatic);
+        let (_, mut h) = measurement_jacobian(model, &x, u, rec.t, JacobianSource::Automatic);
         let mut r = model.measurement_noise(rec.t);
         for (i, yi) in rec.y.iter().enumerate() {
             if yi.is_nan() {
@@ -179,8 +179,7 @@ pub fn bound_from_terms(n: usize, prior_cov: &[f64], terms: &[Vec<f64>]) -> Resu
 /// columns, all of the same length, e.g. the runs of a Monte Carlo campaign).
 pub fn pcrlb<M: Model>(model: &M, prior: &Gaussian<M::State>, truths: &[Dataset]) -> Result<Bound>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let Some(first) = truths.first() else {
         return Err(Error::Run(

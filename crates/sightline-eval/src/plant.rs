@@ -4,10 +4,8 @@
 //! [`Plant`] instantiates them for one model and [`AnyPlant`] hides the type, so the command line
 //! (and a user's own binary) can hold shipped and user-written plants in one list.
 
-use nalgebra::{DefaultAllocator, Dim, OMatrix, OVector};
-use sightline_core::ad::Differentiable;
-use sightline_core::params::validate;
-use sightline_core::{Alloc, Gaussian, Model, ParamError, Parameter, Variable};
+use nalgebra::{DefaultAllocator, Dim, OMatrix};
+use sightline_core::{Alloc, Declaration, Domain, Gaussian, Model, ParamError, Parameter, Variable};
 use sightline_filters::{Filter, FilterSpec, SpecError};
 use sightline_models::ModelVisitor;
 
@@ -28,16 +26,18 @@ pub trait AnyPlant: Send + Sync {
     fn measurements(&self) -> Vec<Variable>;
     /// Inputs in model order.
     fn inputs(&self) -> Vec<Variable>;
-    /// Parameters with current values.
-    fn parameters(&self) -> Vec<Parameter>;
     /// Whether the plant is linear (then `kf` applies).
     fn is_linear(&self) -> bool;
     /// Nominal sample time (s).
     fn dt(&self) -> f64;
-    /// Applies `--set NAME=VALUE`: a model parameter, the prior mean of a state (`x0.<state>`) or
-    /// a constant input (`u.<input>`). Unknown names get an error listing every valid one.
+    /// Parameters with current values: the model's own, then the prior's `x0.<state>` and
+    /// `sd0.<state>` of every state.
+    fn parameters(&self) -> Vec<Parameter>;
+    /// Applies `--set NAME=VALUE`: a model parameter, the prior mean (`x0.<state>`) or standard
+    /// deviation (`sd0.<state>`) of a state, or a constant input (`u.<input>`). Unknown names get
+    /// an error listing every valid one.
     fn set(&mut self, name: &str, value: f64) -> Result<(), ParamError>;
-    /// Prior mean and covariance (column-major), with `x0.` overrides applied.
+    /// Prior mean and covariance (column-major), with `x0.` and `sd0.` overrides applied.
     fn prior(&self) -> (Vec<f64>, Vec<f64>);
     /// The constant input used where the data has no input column (`u.` overrides applied).
     fn constant_input(&self) -> Vec<f64>;
@@ -68,28 +68,36 @@ impl Clone for Box<dyn AnyPlant> {
     }
 }
 
-/// A concrete model with the command-line overrides of its prior mean and input.
+/// A concrete model with the command-line overrides of its prior (mean `x0.<state>`, standard
+/// deviation `sd0.<state>`) and of its constant input (`u.<input>`), which every plant has
+/// without writing anything.
 #[derive(Debug, Clone)]
 pub struct Plant<M> {
     model: M,
+    /// The model's declaration, refreshed whenever a parameter changes.
+    declaration: Declaration,
     /// Overrides of the prior mean, by state index.
     x0: Vec<Option<f64>>,
+    /// Overrides of the prior standard deviation, by state index.
+    sd0: Vec<Option<f64>>,
     /// Overrides of the constant input, by input index.
     u: Vec<Option<f64>>,
 }
 
 impl<M: Model> Plant<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// Wraps a model.
     pub fn new(model: M) -> Self {
-        let n = model.states().len();
-        let m = model.inputs().len();
+        let declaration = model.declare();
+        let n = declaration.states().len();
+        let m = declaration.inputs().len();
         Plant {
             model,
+            declaration,
             x0: vec![None; n],
+            sd0: vec![None; n],
             u: vec![None; m],
         }
     }
@@ -99,7 +107,8 @@ where
         &self.model
     }
 
-    /// The prior with `x0.` overrides applied.
+    /// The prior with the `x0.` and `sd0.` overrides applied. A new standard deviation keeps the
+    /// state's correlations with the others (its row and column are rescaled).
     pub fn prior_gaussian(&self) -> Gaussian<M::State> {
         let mut prior = self.model.prior();
         for (m, v) in prior.mean.iter_mut().zip(&self.x0) {
@@ -107,26 +116,62 @@ where
                 *m = *v;
             }
         }
+        let n = prior.cov.nrows();
+        for (i, sd) in self.sd0.iter().enumerate().take(n) {
+            let Some(sd) = *sd else { continue };
+            let old = prior.cov[(i, i)].max(0.0).sqrt();
+            let ratio = if old > 0.0 { sd / old } else { 0.0 };
+            for j in (0..n).filter(|&j| j != i) {
+                prior.cov[(i, j)] *= ratio;
+                prior.cov[(j, i)] *= ratio;
+            }
+            prior.cov[(i, i)] = sd * sd;
+        }
         prior
     }
 
     /// The constant input with `u.` overrides applied.
-    pub fn input_vector(&self) -> OVector<f64, M::Input> {
-        let mut u = self.model.default_input();
-        for (ui, v) in u.iter_mut().zip(&self.u) {
-            if let Some(v) = v {
-                *ui = *v;
-            }
+    pub fn input_vector(&self) -> Vec<f64> {
+        self.declaration
+            .default_input()
+            .iter()
+            .zip(&self.u)
+            .map(|(d, v)| v.unwrap_or(*d))
+            .collect()
+    }
+
+    /// The framework's parameters of the prior: `x0.<state>` and `sd0.<state>` for every state.
+    fn prior_parameters(&self) -> Vec<Parameter> {
+        let prior = self.prior_gaussian();
+        let states = self.declaration.states();
+        let mut params = Vec::with_capacity(2 * states.len());
+        for (i, v) in states.iter().enumerate() {
+            params.push(Parameter {
+                name: format!("x0.{}", v.name).into(),
+                value: prior.mean.get(i).copied().unwrap_or(0.0),
+                unit: v.unit.clone().into(),
+                about: format!("prior mean of {}", v.name).into(),
+                domain: Domain::Finite,
+            });
         }
-        u
+        for (i, v) in states.iter().enumerate() {
+            let variance = prior.cov.get((i, i)).copied().unwrap_or(0.0);
+            params.push(Parameter {
+                name: format!("sd0.{}", v.name).into(),
+                value: variance.max(0.0).sqrt(),
+                unit: v.unit.clone().into(),
+                about: format!("prior standard deviation of {}", v.name).into(),
+                domain: Domain::Positive,
+            });
+        }
+        params
     }
 }
 
 /// Boxes a model as a plant handle — how a user's own plant joins the command line.
 pub fn plant<M: Model>(model: M) -> Box<dyn AnyPlant>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     Box::new(Plant::new(model))
 }
@@ -137,8 +182,7 @@ pub fn shipped() -> Vec<Box<dyn AnyPlant>> {
     impl ModelVisitor for Collect {
         fn visit<M: Model>(&mut self, model: M)
         where
-            M::State: Differentiable,
-            DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+            DefaultAllocator: Alloc<M::State, M::Meas>,
         {
             self.0.push(plant(model));
         }
@@ -157,83 +201,101 @@ where
 
 impl<M: Model> AnyPlant for Plant<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     fn name(&self) -> &str {
-        self.model.name()
+        self.declaration.name()
     }
     fn description(&self) -> &str {
-        self.model.description()
+        self.declaration.description()
     }
     fn states(&self) -> Vec<Variable> {
-        self.model.states()
+        self.declaration.states().to_vec()
     }
     fn measurements(&self) -> Vec<Variable> {
-        self.model.measurements()
+        self.declaration.measurements().to_vec()
     }
     fn inputs(&self) -> Vec<Variable> {
-        self.model.inputs()
+        self.declaration.inputs().to_vec()
     }
     fn parameters(&self) -> Vec<Parameter> {
-        self.model.parameters()
+        let mut params = self.model.parameters();
+        params.extend(self.prior_parameters());
+        params
     }
     fn is_linear(&self) -> bool {
         self.model.is_linear()
     }
     fn dt(&self) -> f64 {
-        self.model.dt()
+        self.declaration.dt()
     }
 
     fn set(&mut self, name: &str, value: f64) -> Result<(), ParamError> {
-        let model_name = self.model.name().to_string();
-        let finite = |value: f64| {
-            if value.is_finite() {
+        let model_name = self.declaration.name().to_string();
+        let check = |domain: Domain| {
+            if domain.contains(value) {
                 Ok(())
             } else {
                 Err(ParamError::OutOfDomain {
                     model: model_name.clone(),
                     name: name.to_string(),
                     value,
-                    expected: "finite".into(),
+                    expected: domain.describe(),
                 })
             }
         };
-        if let Some(state) = name.strip_prefix("x0.") {
-            if let Some(i) = self.model.states().iter().position(|v| v.name == state) {
-                finite(value)?;
-                self.x0[i] = Some(value);
-                return Ok(());
-            }
-        } else if let Some(input) = name.strip_prefix("u.") {
-            if let Some(i) = self.model.inputs().iter().position(|v| v.name == input) {
-                finite(value)?;
-                self.u[i] = Some(value);
-                return Ok(());
-            }
+        let state = |prefix: &str| {
+            name.strip_prefix(prefix)
+                .and_then(|s| self.declaration.states().iter().position(|v| v.name == s))
+        };
+        if let Some(i) = state("x0.") {
+            check(Domain::Finite)?;
+            self.x0[i] = Some(value);
+            return Ok(());
         }
-        let params = self.model.parameters();
-        match validate(&model_name, &params, name, value) {
-            Ok(p) => {
-                let p = p.name;
-                self.model.apply_parameter(p, value);
+        if let Some(i) = state("sd0.") {
+            check(Domain::Positive)?;
+            self.sd0[i] = Some(value);
+            return Ok(());
+        }
+        let input = name
+            .strip_prefix("u.")
+            .and_then(|s| self.declaration.inputs().iter().position(|v| v.name == s));
+        if let Some(i) = input {
+            check(Domain::Finite)?;
+            self.u[i] = Some(value);
+            return Ok(());
+        }
+        match self.model.set_parameter(name, value) {
+            Ok(()) => {
                 // A runtime-sized model may have changed its number of states or inputs
                 // (e.g. `tankchain`'s `n`): keep the overrides in step, dropping any beyond it.
-                self.x0.resize(self.model.states().len(), None);
-                self.u.resize(self.model.inputs().len(), None);
+                self.declaration = self.model.declare();
+                self.x0.resize(self.declaration.states().len(), None);
+                self.sd0.resize(self.declaration.states().len(), None);
+                self.u.resize(self.declaration.inputs().len(), None);
                 Ok(())
             }
-            Err(ParamError::Unknown { model, name, .. }) => {
-                let mut valid: Vec<String> = params.iter().map(|p| p.name.to_string()).collect();
-                valid.extend(self.model.states().iter().map(|v| format!("x0.{}", v.name)));
-                valid.extend(self.model.inputs().iter().map(|v| format!("u.{}", v.name)));
+            Err(ParamError::Unknown { .. }) => {
+                let mut valid: Vec<String> = self.parameters().into_iter().map(|p| p.name.into_owned()).collect();
+                valid.extend(self.declaration.inputs().iter().map(|v| format!("u.{}", v.name)));
                 Err(ParamError::Unknown {
-                    model,
-                    name,
+                    model: model_name,
+                    name: name.to_string(),
                     valid: valid.join(", "),
                 })
             }
-            Err(e) => Err(e),
+            Err(ParamError::OutOfDomain {
+                name,
+                value,
+                expected,
+                ..
+            }) => Err(ParamError::OutOfDomain {
+                model: model_name,
+                name,
+                value,
+                expected,
+            }),
         }
     }
 
@@ -243,7 +305,7 @@ where
     }
 
     fn constant_input(&self) -> Vec<f64> {
-        to_vec(&self.input_vector())
+        self.input_vector()
     }
 
     fn build_filter(&self, spec: &FilterSpec, seed: u64) -> Result<Box<dyn Filter>, SpecError> {

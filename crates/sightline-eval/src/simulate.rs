@@ -76,12 +76,14 @@ where
 /// The dataset layout of a simulation of `model` (truth included).
 pub fn layout<M: Model>(model: &M) -> Layout
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
+    let declaration = model.declare();
+    let names = |vars: &[sightline_core::Variable]| vars.iter().map(|v| v.name.clone()).collect();
     Layout {
-        inputs: model.inputs().into_iter().map(|v| v.name).collect(),
-        measurements: model.measurements().into_iter().map(|v| v.name).collect(),
-        states: model.states().into_iter().map(|v| v.name).collect(),
+        inputs: names(declaration.inputs()),
+        measurements: names(declaration.measurements()),
+        states: names(declaration.states()),
     }
 }
 
@@ -89,13 +91,13 @@ where
 pub fn simulate<M: Model>(
     model: &M,
     prior: &Gaussian<M::State>,
-    u: &OVector<f64, M::Input>,
+    u: &[f64],
     steps: usize,
     seed: u64,
     options: &SimOptions,
 ) -> Result<Dataset>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     // Grows as rows arrive: a huge `steps` fails for lack of memory row by row, not up front.
     let mut records = Vec::with_capacity(steps.min(1 << 16));
@@ -115,14 +117,14 @@ where
 pub fn simulate_each<M: Model>(
     model: &M,
     prior: &Gaussian<M::State>,
-    u: &OVector<f64, M::Input>,
+    u: &[f64],
     steps: usize,
     seed: u64,
     options: &SimOptions,
     sink: &mut dyn FnMut(&Record) -> Result<()>,
 ) -> Result<()>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     if !(0.0..=1.0).contains(&options.dropout) {
         return Err(Error::Usage(format!(
@@ -133,7 +135,8 @@ where
     if options.every == 0 {
         return Err(Error::Usage("--every must be at least 1".into()));
     }
-    let dt = model.dt();
+    let declaration = model.declare();
+    let dt = declaration.dt();
     let mut rng = stream(seed, &[NOISE_STREAM]);
     let mut dropout_rng = stream(seed, &[DROPOUT_STREAM]);
     let r_factor = noise_factor(
@@ -164,12 +167,12 @@ where
         if x.iter().any(|v| !v.is_finite()) || !t.is_finite() {
             return Err(Error::Run(format!(
                 "simulation of '{}' left the finite range at t = {t} s (row {k}); check the parameters",
-                model.name()
+                declaration.name()
             )));
         }
         record.t = t;
         record.u.clear();
-        record.u.extend_from_slice(u.as_slice());
+        record.u.extend_from_slice(u);
         record.y.clear();
         record.y.extend_from_slice(y.as_slice());
         let truth = record.x.get_or_insert_with(Vec::new);

@@ -164,11 +164,11 @@ pub fn tune(
     let mut coords = Vec::new();
     let mut start = BTreeMap::new();
     for name in names {
-        let Some(p) = params.iter().find(|p| p.name == name) else {
+        let Some(p) = params.iter().find(|p| p.name == *name) else {
             return Err(Error::Usage(format!(
                 "tune: --param '{name}' is not a parameter of '{}'; its parameters are: {}",
                 plant.name(),
-                params.iter().map(|p| p.name).collect::<Vec<_>>().join(", ")
+                params.iter().map(|p| p.name.as_ref()).collect::<Vec<_>>().join(", ")
             )));
         };
         if matches!(p.domain, Domain::Integer(..)) {

@@ -126,7 +126,7 @@ impl Remedies {
 #[derive(Debug, Clone)]
 pub(crate) struct Belief<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     pub model: M,
     pub tag: Tag,
@@ -143,13 +143,14 @@ where
 
 impl<M: Model> Belief<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     pub fn new(model: M, prior: Gaussian<M::State>, label: &str) -> Self {
         let m = model.meas_dim();
+        let tag = Tag::new(label, &model);
         Belief {
             model,
-            tag: Tag::new(label),
+            tag,
             mean: prior.mean,
             cov: prior.cov,
             innov: InnovationStore::new(m),
@@ -189,9 +190,9 @@ where
         Some(record.smooth(&self.model, &self.tag, &self.mean, &self.cov))
     }
 
-    /// The input slice as a model vector.
-    pub fn input(&self, u: &[f64]) -> Result<OVector<f64, M::Input>, FilterError> {
-        self.tag.vector(self.model.input_dim(), u, "input")
+    /// The input slice, checked against the plant's number of inputs.
+    pub fn input<'a>(&self, u: &'a [f64]) -> Result<&'a [f64], FilterError> {
+        self.tag.input(u)
     }
 
     /// The measurement slice as a model vector, with the number of present components.

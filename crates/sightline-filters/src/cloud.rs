@@ -152,7 +152,7 @@ pub(crate) fn scatter<M: Model>(
     key: u64,
     step: u64,
 ) where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();
@@ -176,7 +176,7 @@ pub(crate) fn scatter<M: Model>(
 /// `state_residual` (the shrinkage step of Liu & West 2001, §10.3.3).
 pub(crate) fn shrink<M: Model>(model: &M, cloud: &mut [f64], mean: &[f64], a: f64)
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();
@@ -232,11 +232,10 @@ pub(crate) fn propagate<M: Model>(
     stride: usize,
 ) -> Result<usize, NumericError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();
-    let input_dim = model.input_dim();
     (
         cloud.par_chunks_mut(n * BLOCK),
         partials.par_chunks_mut(stride),
@@ -246,7 +245,7 @@ where
         .with_min_len(min_blocks_per_job())
         .for_each(|(b, (chunk, slot))| {
             let mut rng = stream(seed, &[how.key, how.step, b as u64]);
-            let u = vector(input_dim, how.input);
+            let u = how.input;
             let shared = square(nd, how.factor);
             let (mut lost, mut failed) = (0usize, false);
             for (k, sample) in chunk.chunks_exact_mut(n).enumerate() {
@@ -258,12 +257,12 @@ where
                 };
                 let mut x = match how.anchors {
                     Some(a) => vector(nd, &a[source * n..(source + 1) * n]),
-                    None => model.transition(&start, &u, how.t, how.dt),
+                    None => model.transition(&start, u, how.t, how.dt),
                 };
                 match how.noise {
                     NoiseAt::Mean => add_gaussian(&mut x, &shared, &mut rng),
                     NoiseAt::Each => {
-                        let q = model.process_noise(&start, &u, how.t, how.dt);
+                        let q = model.process_noise(&start, u, how.t, how.dt);
                         match lower_factor(&q, "process noise covariance Q") {
                             Ok(l) => add_gaussian(&mut x, &l, &mut rng),
                             Err(_) => failed = true,
@@ -304,18 +303,17 @@ pub(crate) fn transition_means<M: Model>(
     t: f64,
     dt: f64,
 ) where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();
-    let input_dim = model.input_dim();
     to.par_chunks_mut(n * BLOCK)
         .zip(from.par_chunks(n * BLOCK))
         .with_min_len(min_blocks_per_job())
         .for_each(|(out, src)| {
-            let u = vector(input_dim, input);
+            let u = input;
             for (o, s) in out.chunks_exact_mut(n).zip(src.chunks_exact(n)) {
-                let mean = model.transition(&vector(nd, s), &u, t, dt);
+                let mean = model.transition(&vector(nd, s), u, t, dt);
                 o.copy_from_slice(mean.as_slice());
             }
         });
@@ -341,7 +339,7 @@ pub(crate) fn covariance<M: Model>(
     stride: usize,
 ) -> OMatrix<f64, M::State, M::State>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();
@@ -389,7 +387,7 @@ pub(crate) fn cross_covariance<M: Model>(
     stride: usize,
 ) -> OMatrix<f64, M::State, M::State>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let n = nd.value();

@@ -6,7 +6,6 @@
 //! the model's hand-written Jacobian when it supplies one (`jacobian=model`, the default).
 
 use nalgebra::{DefaultAllocator, Dim};
-use sightline_core::ad::Differentiable;
 use sightline_core::{Alloc, Gaussian, Model};
 
 use crate::belief::{Belief, FLOOR, GATE, REPAIR, Remedies, belief_accessors};
@@ -62,7 +61,7 @@ pub const INFO: KindInfo = KindInfo {
 #[derive(Debug, Clone)]
 pub struct Ekf<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief: Belief<M>,
     source: JacobianSource,
@@ -70,8 +69,7 @@ where
 
 impl<M: Model> Ekf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// An EKF starting from `prior`, labelled `label`.
     pub fn new(model: M, prior: Gaussian<M::State>, label: &str) -> Self {
@@ -96,8 +94,7 @@ pub fn build<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let opts = spec.options(INFO.options)?;
     let source = match opts.choice("jacobian", "model", &["model", "ad"])? {
@@ -111,8 +108,7 @@ where
 
 impl<M: Model> Filter for Ekf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief_accessors!(belief);
 
@@ -130,8 +126,8 @@ where
         let b = &mut self.belief;
         b.tag.step += 1;
         let u = b.input(u)?;
-        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
-        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, u, t, dt, self.source);
+        let q = b.model.process_noise(&b.mean, u, t, dt);
         if b.recording() {
             // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
             let cross = &b.cov * f.transpose();
@@ -150,7 +146,7 @@ where
             b.innov.clear();
             return Ok(());
         }
-        let (predicted, h) = measurement_jacobian(&b.model, &b.mean, &u, t, self.source);
+        let (predicted, h) = measurement_jacobian(&b.model, &b.mean, u, t, self.source);
         let r = b.model.measurement_noise(t);
         b.linear_update(&y, present, &predicted, h, &r, None)
     }

@@ -97,7 +97,7 @@ impl Default for EnkfConfig {
 #[derive(Debug, Clone)]
 pub struct EnsembleKalmanFilter<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     model: M,
     tag: Tag,
@@ -123,7 +123,7 @@ where
 
 impl<M: Model> EnsembleKalmanFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// An ensemble labelled `label` drawn from `prior` (stream `(seed, initial)`).
     ///
@@ -165,14 +165,14 @@ where
         if n == 0 || m == 0 {
             return Err(not_applicable(format!(
                 "the ensemble Kalman filter needs at least one state and one measurement; '{}' has {n} and {m}",
-                model.name()
+                model.declare().name()
             )));
         }
         let stride = (n * m + m * m).max(n * n).max(2);
         let factor = lower_factor(&prior.cov, "prior covariance")
             .map_err(|e| not_applicable(format!("cannot draw the initial ensemble: {e}")))?;
         let mut enkf = EnsembleKalmanFilter {
-            tag: Tag::new(label),
+            tag: Tag::new(label, &model),
             config,
             seed,
             members: cloud::cloud_matrix(nd, count),
@@ -283,7 +283,7 @@ pub fn build<M: Model>(
     seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let config = config_from_spec(spec)?;
     let enkf = EnsembleKalmanFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)?;
@@ -292,7 +292,7 @@ where
 
 impl<M: Model> Filter for EnsembleKalmanFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     fn label(&self) -> &str {
         &self.tag.label
@@ -304,11 +304,11 @@ where
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         self.tag.step += 1;
-        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
+        let input = self.tag.input(u)?;
         let nd = self.model.state_dim();
         let factor = match self.config.noise {
             NoiseAt::Mean => {
-                let q = self.model.process_noise(&self.mean, &input, t, dt);
+                let q = self.model.process_noise(&self.mean, input, t, dt);
                 lower_factor(&q, "process noise covariance Q").map_err(|e| self.tag.numeric(e))?
             }
             NoiseAt::Each => OMatrix::<f64, M::State, M::State>::zeros_generic(nd, nd),
@@ -369,7 +369,7 @@ where
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
-        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
+        let input = self.tag.input(u)?;
         let y = self.tag.vector(self.model.meas_dim(), y, "measurement")?;
         let present = present_mask(&y).map_err(|e| self.tag.numeric(e))?;
         if present == 0 {
@@ -380,22 +380,21 @@ where
         let nd = model.state_dim();
         let md = model.meas_dim();
         let (n, m) = (nd.value(), md.value());
-        let ud = model.input_dim();
         let count = self.config.members;
         let blocks = block_count(count);
 
         // Predicted measurements of the members.
         let members = self.members.as_slice();
-        let us = input.as_slice();
+        let us = input;
         self.predicted_meas
             .as_mut_slice()
             .par_chunks_mut(m * BLOCK)
             .zip(members.par_chunks(n * BLOCK))
             .with_min_len(min_blocks_per_job())
             .for_each(|(meas, xs)| {
-                let u = vector(ud, us);
+                let u = us;
                 for (z, x) in meas.chunks_exact_mut(m).zip(xs.chunks_exact(n)) {
-                    z.copy_from_slice(model.measure(&vector(nd, x), &u, t).as_slice());
+                    z.copy_from_slice(model.measure(&vector(nd, x), u, t).as_slice());
                 }
             });
         ensure_finite(

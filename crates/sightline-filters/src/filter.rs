@@ -2,7 +2,7 @@
 
 use nalgebra::allocator::Allocator;
 use nalgebra::{DefaultAllocator, Dim, OVector, U1};
-use sightline_core::NumericError;
+use sightline_core::{Alloc, Model, NumericError};
 use thiserror::Error;
 
 use crate::smoother::SmoothedTrack;
@@ -144,14 +144,33 @@ pub enum FilterError {
 pub(crate) struct Tag {
     pub label: String,
     pub step: usize,
+    /// Number of plant inputs, counted once from the declaration (checked on every step).
+    pub inputs: usize,
 }
 
 impl Tag {
-    pub fn new(label: &str) -> Self {
+    pub fn new<M: Model>(label: &str, model: &M) -> Self
+    where
+        DefaultAllocator: Alloc<M::State, M::Meas>,
+    {
         Tag {
             label: label.to_string(),
             step: 0,
+            inputs: model.declare().inputs().len(),
         }
+    }
+
+    /// The input slice, checked against the plant's number of inputs.
+    pub fn input<'a>(&self, u: &'a [f64]) -> Result<&'a [f64], FilterError> {
+        if u.len() != self.inputs {
+            return Err(FilterError::Dimension {
+                label: self.label.clone(),
+                what: "input",
+                got: u.len(),
+                expected: self.inputs,
+            });
+        }
+        Ok(u)
     }
 
     /// Wraps a numerical error with the label and step.

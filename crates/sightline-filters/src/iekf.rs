@@ -25,7 +25,6 @@
 //! bound keeps the cost fixed.
 
 use nalgebra::{DefaultAllocator, Dim};
-use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, ensure_finite};
 use sightline_core::{Alloc, Gaussian, Model};
 
@@ -68,7 +67,7 @@ pub const INFO: KindInfo = KindInfo {
 #[derive(Debug, Clone)]
 pub struct Iekf<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief: Belief<M>,
     source: JacobianSource,
@@ -78,8 +77,7 @@ where
 
 impl<M: Model> Iekf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// An IEKF starting from `prior`, with at most `max_iterations` linearisations per update
     /// (at least 1) and step tolerance `tolerance` (see the module docs for the rule).
@@ -113,8 +111,7 @@ pub fn build<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let opts = spec.options(INFO.options)?;
     let iterations = opts.count("iterations", 10, 1, 1000)?;
@@ -131,8 +128,7 @@ where
 
 impl<M: Model> Filter for Iekf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief_accessors!(belief);
 
@@ -151,8 +147,8 @@ where
         let b = &mut self.belief;
         b.tag.step += 1;
         let u = b.input(u)?;
-        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, self.source);
-        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, u, t, dt, self.source);
+        let q = b.model.process_noise(&b.mean, u, t, dt);
         if b.recording() {
             // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
             let cross = &b.cov * f.transpose();
@@ -177,7 +173,7 @@ where
         let mut point = b.mean.clone();
         let mut done = 0;
         let (predicted, h) = loop {
-            let (hx, mut h) = measurement_jacobian(&b.model, &point, &u, t, self.source);
+            let (hx, mut h) = measurement_jacobian(&b.model, &point, u, t, self.source);
             done += 1;
             // The measurement linearised at the iterate, evaluated at the prior mean.
             let predicted = hx + &h * b.model.state_residual(&b.mean, &point);

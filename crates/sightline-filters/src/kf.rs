@@ -12,7 +12,6 @@
 //! smoother; the constant-gain modes decline, because their means are not conditional means.
 
 use nalgebra::{DefaultAllocator, Dim, OMatrix};
-use sightline_core::ad::Differentiable;
 use sightline_core::linalg::{cholesky, symmetrise};
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
 
@@ -53,7 +52,7 @@ pub enum Gain<K> {
 #[derive(Debug, Clone)]
 pub struct Kf<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief: Belief<M>,
     gain: Gain<OMatrix<f64, M::State, M::Meas>>,
@@ -61,8 +60,7 @@ where
 
 impl<M: Model> Kf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// A Kalman filter with the optimal gain. The caller is responsible for `model` being affine
     /// (the spec builder checks [`Model::is_linear`]).
@@ -93,14 +91,14 @@ pub fn steady_state<M: Model>(
     prior: &Gaussian<M::State>,
 ) -> Result<SteadyState<M::State, M::Meas>, NumericError>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
-    let u = model.default_input();
-    let dt = model.dt();
-    let (_, f) = transition_jacobian(model, &prior.mean, &u, 0.0, dt, JacobianSource::Automatic);
-    let (_, h) = measurement_jacobian(model, &prior.mean, &u, 0.0, JacobianSource::Automatic);
-    let q = model.process_noise(&prior.mean, &u, 0.0, dt);
+    let declaration = model.declare();
+    let u = declaration.default_input();
+    let dt = declaration.dt();
+    let (_, f) = transition_jacobian(model, &prior.mean, u, 0.0, dt, JacobianSource::Automatic);
+    let (_, h) = measurement_jacobian(model, &prior.mean, u, 0.0, JacobianSource::Automatic);
+    let q = model.process_noise(&prior.mean, u, 0.0, dt);
     let r = model.measurement_noise(0.0);
     let mut p = prior.cov.clone();
     for _ in 0..100_000 {
@@ -134,14 +132,13 @@ pub fn build<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let opts = spec.options(INFO.options)?;
     if !model.is_linear() {
         return Err(opts.not_applicable(format!(
             "kf needs a linear plant and '{}' is nonlinear; use ekf, ukf or another nonlinear filter",
-            model.name()
+            model.declare().name()
         )));
     }
     let n = model.state_dim().value();
@@ -179,8 +176,7 @@ where
 
 impl<M: Model> Filter for Kf<M>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief_accessors!(belief);
 
@@ -201,8 +197,8 @@ where
         let b = &mut self.belief;
         b.tag.step += 1;
         let u = b.input(u)?;
-        let (fx, f) = transition_jacobian(&b.model, &b.mean, &u, t, dt, JacobianSource::Model);
-        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        let (fx, f) = transition_jacobian(&b.model, &b.mean, u, t, dt, JacobianSource::Model);
+        let q = b.model.process_noise(&b.mean, u, t, dt);
         if b.recording() {
             // Cov(x(k−1), x(k)) = P Fᵀ under the linearised transition (Rauch et al. 1965).
             let cross = &b.cov * f.transpose();
@@ -221,7 +217,7 @@ where
             b.innov.clear();
             return Ok(());
         }
-        let (predicted, h) = measurement_jacobian(&b.model, &b.mean, &u, t, JacobianSource::Model);
+        let (predicted, h) = measurement_jacobian(&b.model, &b.mean, u, t, JacobianSource::Model);
         let r = b.model.measurement_noise(t);
         let gain = match &self.gain {
             Gain::Optimal => None,

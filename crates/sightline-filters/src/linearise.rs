@@ -8,12 +8,12 @@ use sightline_core::{Alloc, Model, Real};
 /// The transition with input, time and step bound: `x ↦ f(x, u, t, dt)`.
 pub struct TransitionFn<'a, M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// Plant.
     pub model: &'a M,
     /// Input over the step.
-    pub u: &'a OVector<f64, M::Input>,
+    pub u: &'a [f64],
     /// Start time.
     pub t: f64,
     /// Step length.
@@ -22,7 +22,7 @@ where
 
 impl<M: Model> VectorFunction<M::State, M::State> for TransitionFn<'_, M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     fn eval<S: Real>(&self, x: &OVector<S, M::State>) -> OVector<S, M::State> {
         self.model.transition(x, self.u, self.t, self.dt)
@@ -32,19 +32,19 @@ where
 /// The measurement with input and time bound: `x ↦ h(x, u, t)`.
 pub struct MeasureFn<'a, M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// Plant.
     pub model: &'a M,
     /// Input at the measurement time.
-    pub u: &'a OVector<f64, M::Input>,
+    pub u: &'a [f64],
     /// Measurement time.
     pub t: f64,
 }
 
 impl<M: Model> VectorFunction<M::State, M::Meas> for MeasureFn<'_, M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     fn eval<S: Real>(&self, x: &OVector<S, M::State>) -> OVector<S, M::Meas> {
         self.model.measure(x, self.u, self.t)
@@ -67,14 +67,13 @@ pub enum JacobianSource {
 pub fn transition_jacobian<M: Model>(
     model: &M,
     x: &OVector<f64, M::State>,
-    u: &OVector<f64, M::Input>,
+    u: &[f64],
     t: f64,
     dt: f64,
     source: JacobianSource,
 ) -> Linearisation<M::State, M::State>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     if source == JacobianSource::Model {
         if let Some(jac) = model.transition_jacobian(x, u, t, dt) {
@@ -88,13 +87,12 @@ where
 pub fn measurement_jacobian<M: Model>(
     model: &M,
     x: &OVector<f64, M::State>,
-    u: &OVector<f64, M::Input>,
+    u: &[f64],
     t: f64,
     source: JacobianSource,
 ) -> Linearisation<M::Meas, M::State>
 where
-    M::State: Differentiable,
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     if source == JacobianSource::Model {
         if let Some(jac) = model.measurement_jacobian(x, u, t) {

@@ -125,7 +125,7 @@ where
         weights: &[f64],
     ) -> Result<SmoothedTrack, FilterError>
     where
-        DefaultAllocator: Alloc<N, M::Meas, M::Input>,
+        DefaultAllocator: Alloc<N, M::Meas>,
     {
         let epochs = self.steps.len() + 1;
         if self.overflow {
@@ -180,10 +180,10 @@ where
                 NoiseAt::Each => {
                     inverse.resize(count * n * n, 0.0);
                     log_det.resize(count, 0.0);
-                    let u = vector(model.input_dim(), &step.input);
+                    let u = step.input.as_slice();
                     for i in 0..count {
                         let x = vector(nd, &cloud[i * n..(i + 1) * n]);
-                        let q = model.process_noise(&x, &u, step.t, step.dt);
+                        let q = model.process_noise(&x, u, step.t, step.dt);
                         let l = lower_factor(&q, "process noise covariance Q at a particle")
                             .map_err(|e| fail(e.to_string()))?;
                         inverse_factor(
@@ -306,7 +306,7 @@ fn mahalanobis(inverse: &[f64], r: &[f64]) -> f64 {
 /// Sample mean and covariance (M − 1 denominator) of the trajectories into epoch `k` of `track`.
 fn moments<M: Model>(model: &M, current: &[f64], paths: usize, track: &mut SmoothedTrack, k: usize)
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let nd = model.state_dim();
     let cloud = OMatrix::<f64, M::State, Dyn>::from_column_slice_generic(nd, Dyn(paths), current);

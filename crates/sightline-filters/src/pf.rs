@@ -273,7 +273,7 @@ where
 #[derive(Debug, Clone)]
 pub struct ParticleFilter<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     model: M,
     tag: Tag,
@@ -304,7 +304,7 @@ where
     stride: usize,
     /// Factor of Q at the mean for the last prediction.
     q_factor: OMatrix<f64, M::State, M::State>,
-    last_input: OVector<f64, M::Input>,
+    last_input: Vec<f64>,
     last_t: f64,
     last_dt: f64,
     mean: OVector<f64, M::State>,
@@ -319,7 +319,7 @@ where
 
 impl<M: Model> ParticleFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// A particle filter labelled `label` with the cloud drawn from `prior` (stream
     /// `(seed, initial)`).
@@ -381,7 +381,7 @@ where
         if n == 0 || m == 0 {
             return Err(not_applicable(format!(
                 "the particle filter needs at least one state and one measurement; '{}' has {n} and {m}",
-                model.name()
+                model.declare().name()
             )));
         }
         let blocks = block_count(count);
@@ -394,7 +394,7 @@ where
         let factor = lower_factor(&prior.cov, "prior covariance")
             .map_err(|e| not_applicable(format!("cannot draw the initial particles: {e}")))?;
         let mut pf = ParticleFilter {
-            tag: Tag::new(label),
+            tag: Tag::new(label, &model),
             config,
             seed,
             particles: cloud::cloud_matrix(nd, count),
@@ -411,7 +411,7 @@ where
             partials: vec![0.0; blocks * stride],
             stride,
             q_factor: OMatrix::zeros_generic(nd, nd),
-            last_input: model.default_input(),
+            last_input: model.declare().default_input().to_vec(),
             last_t: 0.0,
             last_dt: 0.0,
             mean: prior.mean.clone(),
@@ -572,7 +572,6 @@ where
         let model = &self.model;
         let nd = model.state_dim();
         let md = model.meas_dim();
-        let ud = model.input_dim();
         let (n, m) = (nd.value(), md.value());
         let points = match source {
             Source::Particles => self.particles.as_slice(),
@@ -596,12 +595,12 @@ where
             .with_min_len(min_blocks_per_job())
             .for_each(|(b, (lw, meas, valid, slot))| {
                 let y = vector(md, y);
-                let u = vector(ud, u);
+                
                 let (mut max, mut valid_sum) = (f64::NEG_INFINITY, 0.0);
                 for k in 0..lw.len() {
                     let i = b * BLOCK + k;
                     let x = vector(nd, &points[i * n..(i + 1) * n]);
-                    let z = model.measure(&x, &u, t);
+                    let z = model.measure(&x, u, t);
                     let out = &mut meas[k * m..(k + 1) * m];
                     let l = if z.iter().all(|v| v.is_finite()) {
                         out.copy_from_slice(z.as_slice());
@@ -1149,7 +1148,7 @@ where
         }
         self.log_weights.copy_from_slice(&self.weights);
         let how = Propagation {
-            input: self.last_input.as_slice(),
+            input: &self.last_input,
             t: self.last_t,
             dt: self.last_dt,
             factor: self.q_factor.as_slice(),
@@ -1281,7 +1280,7 @@ pub fn build<M: Model>(
     seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let config = config_from_spec(spec)?;
     let pf = ParticleFilter::new(model.clone(), prior.clone(), config, &spec.label, seed)?;
@@ -1290,7 +1289,7 @@ where
 
 impl<M: Model> Filter for ParticleFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     fn label(&self) -> &str {
         &self.tag.label
@@ -1302,12 +1301,12 @@ where
 
     fn predict(&mut self, u: &[f64], t: f64, dt: f64) -> Result<(), FilterError> {
         self.tag.step += 1;
-        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
-        self.last_input.copy_from(&input);
+        let input = self.tag.input(u)?;
+        self.last_input.copy_from_slice(input);
         self.last_t = t;
         self.last_dt = dt;
         if self.config.noise == NoiseAt::Mean {
-            let q = self.model.process_noise(&self.mean, &input, t, dt);
+            let q = self.model.process_noise(&self.mean, input, t, dt);
             self.q_factor =
                 lower_factor(&q, "process noise covariance Q").map_err(|e| self.tag.numeric(e))?;
         }
@@ -1360,7 +1359,7 @@ where
     }
 
     fn update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
-        let input = self.tag.vector(self.model.input_dim(), u, "input")?;
+        let input = self.tag.input(u)?;
         let y = self.tag.vector(self.model.meas_dim(), y, "measurement")?;
         let present = present_mask(&y).map_err(|e| self.tag.numeric(e))?;
         let anchored = std::mem::take(&mut self.anchored);
@@ -1371,9 +1370,9 @@ where
         }
         let lik = self.likelihood(&y, present, t)?;
         if anchored {
-            self.auxiliary_update(&y, present, input.as_slice(), t, &lik)
+            self.auxiliary_update(&y, present, input, t, &lik)
         } else {
-            self.sir_update(&y, present, input.as_slice(), t, &lik)
+            self.sir_update(&y, present, input, t, &lik)
         }
     }
 

@@ -4,7 +4,6 @@
 //! `registry!` invocation below: its [`KindInfo`] and its `build` function.
 
 use nalgebra::DefaultAllocator;
-use sightline_core::ad::Differentiable;
 use sightline_core::{Alloc, Gaussian, Model};
 
 use crate::filter::Filter;
@@ -37,8 +36,7 @@ macro_rules! registry {
             seed: u64,
         ) -> Result<Box<dyn Filter>, SpecError>
         where
-            M::State: Differentiable,
-            DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+            DefaultAllocator: Alloc<M::State, M::Meas>,
         {
             $(
                 if spec.kind == $info.kind {

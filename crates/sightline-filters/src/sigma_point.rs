@@ -78,7 +78,7 @@ pub const GHKF: KindInfo = KindInfo {
 #[derive(Debug, Clone)]
 pub struct SigmaPointFilter<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief: Belief<M>,
     kind: &'static str,
@@ -92,7 +92,7 @@ where
 
 impl<M: Model> SigmaPointFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// A sigma-point filter with `rule`, starting from `prior`. `kind` names it in reports.
     pub fn new(
@@ -142,7 +142,7 @@ fn build_rule<M: Model>(
     remedies: Remedies,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let mut f = SigmaPointFilter::new(model.clone(), prior.clone(), rule, kind, &spec.label)
         .map_err(|e| SpecError::NotApplicable {
@@ -161,7 +161,7 @@ pub fn build_ukf<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let rule = unscented_rule(spec)?;
     let remedies = Remedies::from_options(&spec.options(UKF.options)?, model.meas_dim().value())?;
@@ -187,7 +187,7 @@ pub fn build_ckf<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let remedies = Remedies::from_options(&spec.options(CKF.options)?, model.meas_dim().value())?;
     build_rule(model, prior, spec, SigmaRule::Cubature, CKF.kind, remedies)
@@ -201,7 +201,7 @@ pub fn build_ghkf<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let o = spec.options(GHKF.options)?;
     let order = o.count("order", 3, 1, 20)?;
@@ -218,7 +218,7 @@ where
 
 impl<M: Model> Filter for SigmaPointFilter<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief_accessors!(belief);
 
@@ -238,9 +238,9 @@ where
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
             self.mapped
-                .set_column(i, &b.model.transition(&x, &u, t, dt));
+                .set_column(i, &b.model.transition(&x, u, t, dt));
         }
-        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        let q = b.model.process_noise(&b.mean, u, t, dt);
         let mean = b.model.state_mean(&self.mapped, &self.wm);
         let mut cov = q;
         for (i, &w) in self.wc.iter().enumerate() {
@@ -277,7 +277,7 @@ where
         let b = &mut self.belief;
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
-            self.meas_points.set_column(i, &b.model.measure(&x, &u, t));
+            self.meas_points.set_column(i, &b.model.measure(&x, u, t));
         }
         let predicted = b.model.measurement_mean(&self.meas_points, &self.wm);
         let mut s = b.model.measurement_noise(t);

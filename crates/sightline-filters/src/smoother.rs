@@ -175,7 +175,7 @@ pub fn rts<M: Model>(
     last: &Gaussian<M::State>,
 ) -> Result<Vec<Gaussian<M::State>>, SmootherFailure>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let mut smoothed = Vec::with_capacity(transitions.len() + 1);
     smoothed.push(last.clone());
@@ -255,7 +255,7 @@ where
         cov: &OMatrix<f64, N, N>,
     ) -> Result<SmoothedTrack, FilterError>
     where
-        DefaultAllocator: Alloc<N, M::Meas, M::Input>,
+        DefaultAllocator: Alloc<N, M::Meas>,
     {
         if self.pending.is_some() {
             return Err(smoothing_error(

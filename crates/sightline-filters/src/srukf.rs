@@ -71,7 +71,7 @@ pub const INFO: KindInfo = KindInfo {
 #[derive(Debug, Clone)]
 pub struct SquareRootUkf<M: Model>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief: Belief<M>,
     /// Lower-triangular S with P = S Sᵀ; `belief.cov` mirrors S Sᵀ for the accessors.
@@ -90,7 +90,7 @@ where
 
 impl<M: Model> SquareRootUkf<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// A square-root filter with sigma-point `rule` (the registry uses the scaled unscented
     /// rule), starting from `prior`. Fails if the rule has no points for the plant's dimension or
@@ -207,7 +207,7 @@ pub fn build<M: Model>(
     _seed: u64,
 ) -> Result<Box<dyn Filter>, SpecError>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let rule = unscented_rule(spec)?;
     let remedies = Remedies::from_options(&spec.options(INFO.options)?, model.meas_dim().value())?;
@@ -230,7 +230,7 @@ where
 
 impl<M: Model> Filter for SquareRootUkf<M>
 where
-    DefaultAllocator: Alloc<M::State, M::Meas, M::Input>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     belief_accessors!(belief);
 
@@ -251,11 +251,11 @@ where
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
             self.mapped
-                .set_column(i, &b.model.transition(&x, &u, t, dt));
+                .set_column(i, &b.model.transition(&x, u, t, dt));
         }
         let mean = b.model.state_mean(&self.mapped, &self.wm);
         ensure_finite(mean.iter(), "predicted mean").map_err(numeric)?;
-        let q = b.model.process_noise(&b.mean, &u, t, dt);
+        let q = b.model.process_noise(&b.mean, u, t, dt);
         let q_factor = semidefinite_factor(&q, "process noise covariance").map_err(numeric)?;
         let deviations = self.mapped.ncols() - 1;
         for i in 1..self.mapped.ncols() {
@@ -337,7 +337,7 @@ where
         let numeric = |e: NumericError| b.tag.numeric(e);
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
-            self.meas_points.set_column(i, &b.model.measure(&x, &u, t));
+            self.meas_points.set_column(i, &b.model.measure(&x, u, t));
         }
         let predicted = b.model.measurement_mean(&self.meas_points, &self.wm);
         ensure_finite(predicted.iter(), "predicted measurement").map_err(numeric)?;

@@ -69,21 +69,35 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
                 .join(", ")
         };
         out.push_str(&format!("  inputs:       {inputs_text}\n"));
-        let (mean, _) = p.prior();
+        let params = p.parameters();
+        let (prior, model_params): (Vec<_>, Vec<_>) = params
+            .iter()
+            .partition(|q| q.name.starts_with("x0.") || q.name.starts_with("sd0."));
+        let value = |name: String| {
+            prior
+                .iter()
+                .find(|q| q.name == name)
+                .map_or(f64::NAN, |q| q.value)
+        };
         out.push_str(&format!(
-            "  prior mean:   {}\n",
+            "  prior:        {}\n",
             elide(
                 p.states()
                     .iter()
-                    .zip(&mean)
-                    .map(|(v, m)| format!("x0.{}={}", v.name, number(*m, false)))
+                    .map(|v| format!(
+                        "{} ~ {} ± {}",
+                        v.name,
+                        number(value(format!("x0.{}", v.name)), false),
+                        number(value(format!("sd0.{}", v.name)), false)
+                    ))
                     .collect()
             )
         ));
+        out.push_str("                (set with --set x0.<state>=MEAN, --set sd0.<state>=SD)\n");
         let mut table = Table::new();
         table.load_style(UTF8_FULL_CONDENSED);
         table.set_header(vec!["parameter", "default", "unit", "allowed", "meaning"]);
-        for param in p.parameters() {
+        for param in model_params {
             table.add_row(vec![
                 param.name.to_string(),
                 number(param.value, true),

@@ -1,0 +1,2 @@
+//! # Writing a plant
+//! (placeholder)
