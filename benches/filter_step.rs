@@ -143,10 +143,10 @@ fn bench_jacobian<M: Model>(
     DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     let x = model.prior().mean;
-    let u = model.default_input();
-    let dt = model.dt();
+    let declaration = model.declare();
+    let (u, dt) = (declaration.default_input(), declaration.dt());
     group.bench_function(name, |b| {
-        b.iter(|| transition_jacobian(model, black_box(&x), &u, 0.0, dt, source))
+        b.iter(|| transition_jacobian(model, black_box(&x), u, 0.0, dt, source))
     });
 }
 

@@ -8,97 +8,67 @@
 //! identifiable. Run with `cargo run --release --example augmented_outlet`.
 
 use sightline::core::SigmaRule;
-use sightline::core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
 use sightline::core::rng::stream;
-use sightline::core::{Gaussian, Model, Real, Variable, rk4, van_loan};
 use sightline::filters::{Ekf, Filter, SigmaPointFilter};
+use sightline::prelude::*;
 
 /// Cistern level `h` (m) and outlet area `a` (m²), the area as a random-walk state.
-#[derive(Clone)]
+#[derive(Clone, Parameters)]
 pub struct Cistern {
-    /// Cross-section (m²).
+    /// Cross-section of the cistern.
+    #[param(default = 2.0, unit = "m^2", domain = Positive)]
     pub section: f64,
-    /// Gravity (m/s²).
+    /// Gravitational acceleration.
+    #[param(default = 9.80665, unit = "m/s^2", domain = Positive)]
     pub g: f64,
-    /// Spectral density of the level disturbance (m²/s).
+    /// Spectral density of the level disturbance.
+    #[param(default = 1e-8, unit = "m^2/s", domain = Positive)]
     pub q_level: f64,
-    /// Spectral density of the area's random walk (m⁴/s): small, the area is nearly constant.
+    /// Spectral density of the area's random walk: small, the area is nearly constant.
+    #[param(default = 1e-14, unit = "m^4/s", domain = Positive)]
     pub q_area: f64,
-    /// Level sensor variance (m²).
+    /// Level sensor variance.
+    #[param(default = 2.5e-5, unit = "m^2", domain = Positive)]
     pub r: f64,
-}
-
-impl Cistern {
-    fn derivative<S: Real>(&self, x: &Vector2<S>, inflow: f64) -> Vector2<S> {
-        // max(h, 0) keeps the square root real if an estimate dips below empty.
-        let h = if x[0].re() > 0.0 { x[0] } else { x[0] * 0.0 };
-        let outflow = x[1] * (h * (2.0 * self.g)).sqrt();
-        Vector2::new((outflow * -1.0 + inflow) / self.section, x[1] * 0.0)
-    }
 }
 
 impl Model for Cistern {
     type State = U2;
     type Meas = U1;
-    type Input = U1;
-    fn name(&self) -> &str {
-        "cistern"
+
+    /// The level is read at once; the area is only guessed: 8 ± 4 cm².
+    fn declare(&self) -> Declaration {
+        Declaration::new("cistern", 10.0)
+            .state("level", "m", 0.8, 0.1)
+            .state("outlet_area", "m^2", 8e-4, 4e-4)
+            .measurement("level", "m")
+            .input("inflow", "m^3/s", 0.002)
     }
-    fn state_dim(&self) -> U2 {
-        U2
+
+    /// A·dh/dt = q_in − a·√(2 g h), da/dt = 0. The smooth maximum keeps the root real and its
+    /// slope finite if an estimate dips below empty.
+    fn derivative<S: Real>(&self, x: &Vector2<S>, u: &[f64], _t: f64) -> Vector2<S> {
+        let (level, area) = (x[0], x[1]);
+        let outflow = area * (level.smooth_max(0.0, 1e-4) * (2.0 * self.g)).sqrt();
+        Vector2::new((c(u[0]) - outflow) / self.section, S::zero())
     }
-    fn meas_dim(&self) -> U1 {
-        U1
+
+    fn noise_density(&self, _x: &Vector2<f64>, _u: &[f64], _t: f64) -> Matrix2<f64> {
+        Matrix2::new(self.q_level, 0.0, 0.0, self.q_area)
     }
-    fn input_dim(&self) -> U1 {
-        U1
+
+    fn integrator(&self, _dt: f64) -> Integrator {
+        Integrator::Rk4 { substeps: 2 }
     }
-    fn states(&self) -> Vec<Variable> {
-        vec![
-            Variable::new("level", "m"),
-            Variable::new("outlet_area", "m^2"),
-        ]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("level", "m")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("inflow", "m^3/s")]
-    }
-    fn transition<S: Real>(&self, x: &Vector2<S>, u: &Vector1<f64>, t: f64, dt: f64) -> Vector2<S> {
-        rk4(|_t, x: &Vector2<S>| self.derivative(x, u[0]), x, t, dt, 2)
-    }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
+
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[0])
     }
-    fn process_noise(&self, x: &Vector2<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> Matrix2<f64> {
-        // Van Loan on the dynamics linearised at x (Van Loan, IEEE TAC 23(3), 1978).
-        let h = x[0].max(1e-6);
-        let root = (2.0 * self.g * h).sqrt();
-        let a = Matrix2::new(
-            -x[1] * self.g / (root * self.section),
-            -root / self.section,
-            0.0,
-            0.0,
-        );
-        van_loan(&a, &Matrix2::new(self.q_level, 0.0, 0.0, self.q_area), dt).1
-    }
+
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
         Matrix1::new(self.r)
     }
-    fn prior(&self) -> Gaussian<U2> {
-        // The level is read at once; the area is only guessed: 8 ± 4 cm².
-        Gaussian::new(
-            Vector2::new(0.8, 8e-4),
-            Matrix2::new(0.01, 0.0, 0.0, 1.6e-7),
-        )
-    }
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(0.002)
-    }
-    fn dt(&self) -> f64 {
-        10.0
-    }
+
     fn project(&self, x: &mut Vector2<f64>) {
         x[0] = x[0].max(0.0);
         x[1] = x[1].max(0.0);
@@ -119,19 +89,13 @@ fn inflow(t: f64) -> f64 {
 pub fn run(area: f64, seed: u64, filters: &mut [Box<dyn Filter>]) -> Vec<(f64, f64)> {
     use rand::RngExt;
     use rand_distr::StandardNormal;
-    let plant = Cistern {
-        section: 2.0,
-        g: 9.80665,
-        q_level: 1e-8,
-        q_area: 1e-14,
-        r: 2.5e-5,
-    };
+    let plant = Cistern::default();
     let mut rng = stream(seed, &[1]);
     let mut x = Vector2::new(0.8, area);
-    let dt = plant.dt();
+    let dt = plant.declare().dt();
     for k in 0..1080 {
         let t = k as f64 * dt;
-        let u = Vector1::new(inflow(t));
+        let u = [inflow(t)];
         let noise: f64 = rng.sample(StandardNormal);
         let y = [x[0] + plant.r.sqrt() * noise];
         for f in filters.iter_mut() {
@@ -139,7 +103,7 @@ pub fn run(area: f64, seed: u64, filters: &mut [Box<dyn Filter>]) -> Vec<(f64, f
                 let u_prev = [inflow(t - dt)];
                 f.predict(&u_prev, t - dt, dt).expect("predict");
             }
-            f.update(&y, u.as_slice(), t).expect("update");
+            f.update(&y, &u, t).expect("update");
         }
         // The truth: the level drifts only through the plant; the area is constant.
         x = plant.transition(&x, &u, t, dt);
@@ -154,13 +118,7 @@ pub fn run(area: f64, seed: u64, filters: &mut [Box<dyn Filter>]) -> Vec<(f64, f
 
 /// The cistern filters used by the example and its test.
 pub fn cistern_filters() -> Vec<Box<dyn Filter>> {
-    let plant = Cistern {
-        section: 2.0,
-        g: 9.80665,
-        q_level: 1e-8,
-        q_area: 1e-14,
-        r: 2.5e-5,
-    };
+    let plant = Cistern::default();
     let prior = plant.prior();
     vec![
         Box::new(Ekf::new(plant.clone(), prior.clone(), "ekf")),

@@ -1,5 +1,6 @@
 //! Your own plant with Sightline: a heated aluminium block cooling by convection and radiation,
-//! seen through a thermocouple with its own lag. (A plant of our own; the numbers are a
+//! seen through a thermocouple with its own lag, written in continuous time: the library
+//! integrates it and derives the process noise. (A plant of our own; the numbers are a
 //! plausible bench set-up, invented for the example.)
 //!
 //! ```text
@@ -18,118 +19,80 @@
 
 use std::process::ExitCode;
 
+use sightline::FilterSpec;
 use sightline::eval::simulate::SimOptions;
-use sightline::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable, core::rk4};
+use sightline::prelude::*;
 
 /// Stefan–Boltzmann constant (W m⁻² K⁻⁴), CODATA 2018 exact value.
 const SIGMA: f64 = 5.670_374_419e-8;
 
-/// The heated block; every field could be exposed as a `--set` parameter via `parameters()`.
-#[derive(Debug, Clone)]
+/// The heated block; every field is a `--set` parameter.
+#[derive(Debug, Clone, Parameters)]
 struct ThermalMass {
-    /// Heat capacity (J/K).
+    /// Heat capacity of the block.
+    #[param(default = 900.0, unit = "J/K", domain = Positive)]
     capacity: f64,
-    /// Convection coefficient (W m⁻² K⁻¹).
+    /// Convection coefficient.
+    #[param(default = 10.0, unit = "W/(m^2 K)", domain = NonNegative)]
     convection: f64,
-    /// Surface area (m²).
+    /// Surface area.
+    #[param(default = 0.06, unit = "m^2", domain = Positive)]
     area: f64,
-    /// Emissivity (-).
+    /// Emissivity of the surface.
+    #[param(default = 0.8, unit = "-", domain = Interval(0.0, 1.0))]
     emissivity: f64,
-    /// Ambient temperature (°C).
+    /// Ambient temperature.
+    #[param(default = 20.0, unit = "degC", domain = Finite)]
     ambient: f64,
-    /// Thermocouple time constant (s).
+    /// Thermocouple time constant.
+    #[param(default = 8.0, unit = "s", domain = Positive)]
     tau: f64,
-    /// Sample time (s).
+    /// Sample time.
+    #[param(default = 1.0, unit = "s", domain = Positive)]
     dt: f64,
-}
-
-impl Default for ThermalMass {
-    fn default() -> Self {
-        ThermalMass {
-            capacity: 900.0,
-            convection: 10.0,
-            area: 0.06,
-            emissivity: 0.8,
-            ambient: 20.0,
-            tau: 8.0,
-            dt: 1.0,
-        }
-    }
-}
-
-impl ThermalMass {
-    fn derivative<S: Real>(&self, x: &Vector2<S>, power: f64) -> Vector2<S> {
-        let t = x[0];
-        let kelvin = t + 273.15;
-        let ambient_k4 = (self.ambient + 273.15).powi(4);
-        let loss = (t - self.ambient) * (self.convection * self.area)
-            + (kelvin.powi(4) - ambient_k4) * (self.emissivity * SIGMA * self.area);
-        Vector2::new(
-            (loss * -1.0 + power) * (1.0 / self.capacity),
-            (t - x[1]) * (1.0 / self.tau),
-        )
-    }
 }
 
 impl Model for ThermalMass {
     type State = U2;
     type Meas = U1;
-    type Input = U1;
-    fn name(&self) -> &str {
-        "thermal-mass"
+
+    fn declare(&self) -> Declaration {
+        Declaration::new("thermal-mass", self.dt)
+            .describe("heated block, convection + radiation, lagging thermocouple (example plant)")
+            .state("block", "degC", 25.0, 2.0)
+            .state("sensor", "degC", 25.0, 2.0)
+            .measurement("thermocouple", "degC")
+            .input("heater", "W", 60.0)
     }
-    fn description(&self) -> &str {
-        "heated block, convection + radiation, lagging thermocouple (example plant)"
+
+    fn derivative<S: Real>(&self, x: &Vector2<S>, u: &[f64], _t: f64) -> Vector2<S> {
+        let (block, sensor) = (x[0], x[1]);
+        let kelvin = block + 273.15;
+        let ambient_k4 = (self.ambient + 273.15).powi(4);
+        let loss = (block - self.ambient) * (self.convection * self.area)
+            + (kelvin.powi(4) - ambient_k4) * (self.emissivity * SIGMA * self.area);
+        Vector2::new(
+            (c(u[0]) - loss) / self.capacity,
+            (block - sensor) / self.tau,
+        )
     }
-    fn state_dim(&self) -> U2 {
-        U2
+
+    /// Unmodelled heat flows (draughts, heater ripple) on the block, a little on the junction.
+    fn noise_density(&self, _x: &Vector2<f64>, _u: &[f64], _t: f64) -> Matrix2<f64> {
+        Matrix2::new(4e-4, 0.0, 0.0, 1e-6)
     }
-    fn meas_dim(&self) -> U1 {
-        U1
+
+    /// Four RK4 steps per sample: the thermocouple's lag is the fastest dynamics.
+    fn integrator(&self, _dt: f64) -> Integrator {
+        Integrator::Rk4 { substeps: 4 }
     }
-    fn input_dim(&self) -> U1 {
-        U1
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![
-            Variable::new("block", "degC"),
-            Variable::new("sensor", "degC"),
-        ]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("thermocouple", "degC")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("heater", "W")]
-    }
-    fn transition<S: Real>(&self, x: &Vector2<S>, u: &Vector1<f64>, t: f64, dt: f64) -> Vector2<S> {
-        rk4(|_t, x: &Vector2<S>| self.derivative(x, u[0]), x, t, dt, 4)
-    }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
+
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[1])
     }
-    fn process_noise(
-        &self,
-        _x: &Vector2<f64>,
-        _u: &Vector1<f64>,
-        _t: f64,
-        dt: f64,
-    ) -> Matrix2<f64> {
-        // Unmodelled heat flows (draughts, heater ripple) on the block only.
-        Matrix2::new(4e-4 * dt, 0.0, 0.0, 1e-6 * dt)
-    }
+
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
         Matrix1::new(0.05)
-    }
-    fn prior(&self) -> Gaussian<U2> {
-        Gaussian::new(Vector2::new(25.0, 25.0), Matrix2::new(4.0, 0.0, 0.0, 4.0))
-    }
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(60.0)
-    }
-    fn dt(&self) -> f64 {
-        self.dt
     }
 }
 

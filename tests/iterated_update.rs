@@ -5,49 +5,32 @@
 use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
 use sightline::filters::{Filter, build};
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-type NoInput = SVector<f64, 0>;
 
 const PRIOR_MEAN: f64 = 1.0;
 const PRIOR_VAR: f64 = 0.5;
 const R: f64 = 0.1;
 
 /// x ~ N(1, 0.5), y = x³ + v: a strongly nonlinear measurement.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct Cubic;
 
 impl Model for Cubic {
     type State = U1;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "cubic-sensor"
+    fn declare(&self) -> Declaration {
+        Declaration::new("cubic-sensor", 1.0)
+            .state("x", "-", 0.0, 1.0)
+            .measurement("y", "-")
     }
-    fn state_dim(&self) -> U1 {
-        U1
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("x", "-")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("y", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, _t: f64, _dt: f64) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector1<S> {
         *x
     }
-    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[0] * x[0] * x[0])
     }
-    fn process_noise(&self, _x: &Vector1<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix1<f64> {
+    fn process_noise(&self, _x: &Vector1<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix1<f64> {
         Matrix1::new(0.0)
     }
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
@@ -55,12 +38,6 @@ impl Model for Cubic {
     }
     fn prior(&self) -> Gaussian<U1> {
         Gaussian::new(Vector1::new(PRIOR_MEAN), Matrix1::new(PRIOR_VAR))
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
 }
 

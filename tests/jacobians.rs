@@ -28,7 +28,7 @@ fn ad_transition_jacobian_equals_the_hand_derived_rk4_jacobian() {
         ..Pendulum::default()
     };
     for (x, torque, dt) in random_points() {
-        let u = Vector1::new(torque);
+        let u = [torque];
         let (value, ad) = U2::jacobian(
             &TransitionFn {
                 model: &model,
@@ -57,7 +57,7 @@ fn ad_jacobians_equal_central_differences() {
         ..Pendulum::default()
     };
     for (x, torque, dt) in random_points() {
-        let u = Vector1::new(torque);
+        let u = [torque];
         let (_, ad) = U2::jacobian(
             &TransitionFn {
                 model: &model,

@@ -103,13 +103,13 @@ impl ModelVisitor for Soak {
     where
         DefaultAllocator: Alloc<M::State, M::Meas>,
     {
-        if model.name() != self.model {
+        if model.declare().name() != self.model {
             return;
         }
         self.found = true;
         let started = std::time::Instant::now();
         let prior = model.prior();
-        let n = model.states().len();
+        let n = model.declare().states().len();
         let kinds: Vec<&str> = self
             .kinds
             .iter()
@@ -139,7 +139,7 @@ impl ModelVisitor for Soak {
         simulate_each(
             &model,
             &prior,
-            &model.default_input(),
+            model.declare().default_input(),
             self.steps,
             0x50AC,
             &SimOptions::default(),

@@ -13,6 +13,7 @@ use sightline::eval::simulate::SimOptions;
 use sightline::filters::Filter;
 use sightline::models::Pendulum;
 use sightline::{AnyPlant, FilterSpec, Gaussian, Model, Real, Variable, shipped};
+use sightline::prelude::*;
 
 struct Counting;
 
@@ -60,41 +61,28 @@ fn count_allocations(f: impl FnOnce()) -> usize {
 }
 
 /// A pendulum seen by two sensors, the bob's horizontal and vertical positions.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct TwoSensorPendulum(Pendulum);
 
 impl Model for TwoSensorPendulum {
     type State = U2;
     type Meas = U2;
-    type Input = U1;
-    fn name(&self) -> &str {
-        "pendulum-xy"
+    fn declare(&self) -> Declaration {
+        let p = self.0.declare();
+        Declaration::new("pendulum-xy", p.dt())
+            .state("angle", "rad", 0.6, 0.1)
+            .state("rate", "rad/s", 0.0, 0.2)
+            .measurement("x", "m")
+            .measurement("y", "m")
+            .input("torque", "rad/s^2", 0.0)
     }
-    fn state_dim(&self) -> U2 {
-        U2
-    }
-    fn meas_dim(&self) -> U2 {
-        U2
-    }
-    fn input_dim(&self) -> U1 {
-        U1
-    }
-    fn states(&self) -> Vec<Variable> {
-        self.0.states()
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("x", "m"), Variable::new("y", "m")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        self.0.inputs()
-    }
-    fn transition<S: Real>(&self, x: &Vector2<S>, u: &Vector1<f64>, t: f64, dt: f64) -> Vector2<S> {
+    fn transition<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64, dt: f64) -> Vector2<S> {
         self.0.transition(x, u, t, dt)
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector2<S> {
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector2<S> {
         Vector2::new(x[0].sin() * self.0.length, -x[0].cos() * self.0.length)
     }
-    fn process_noise(&self, x: &Vector2<f64>, u: &Vector1<f64>, t: f64, dt: f64) -> Matrix2<f64> {
+    fn process_noise(&self, x: &Vector2<f64>, u: &[f64], t: f64, dt: f64) -> Matrix2<f64> {
         self.0.process_noise(x, u, t, dt)
     }
     fn measurement_noise(&self, _t: f64) -> Matrix2<f64> {
@@ -102,12 +90,6 @@ impl Model for TwoSensorPendulum {
     }
     fn prior(&self) -> Gaussian<U2> {
         self.0.prior()
-    }
-    fn default_input(&self) -> Vector1<f64> {
-        self.0.default_input()
-    }
-    fn dt(&self) -> f64 {
-        self.0.dt()
     }
 }
 

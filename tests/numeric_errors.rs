@@ -7,8 +7,8 @@ use sightline::core::NumericError;
 use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
 use sightline::filters::{FilterError, build};
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-type NoInput = SVector<f64, 0>;
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Fault {
@@ -23,7 +23,7 @@ enum Fault {
     Square,
 }
 
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct Faulty(Fault);
 
 impl Faulty {
@@ -35,29 +35,12 @@ impl Faulty {
 impl Model for Faulty {
     type State = U1;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "faulty"
+    fn declare(&self) -> Declaration {
+        Declaration::new("faulty", 1.0)
+            .state("x", "-", 0.0, 1.0)
+            .measurement("y", "-")
     }
-    fn state_dim(&self) -> U1 {
-        U1
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("x", "-")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("y", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, t: f64, _dt: f64) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &[f64], t: f64, _dt: f64) -> Vector1<S> {
         if self.0 == Fault::Square {
             return Vector1::new(x[0] * x[0]);
         }
@@ -66,13 +49,13 @@ impl Model for Faulty {
         }
         Vector1::new(x[0] * 0.9)
     }
-    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &[f64], t: f64) -> Vector1<S> {
         if self.broken(Fault::NanMeasurement, t) {
             return Vector1::new(x[0] * f64::NAN);
         }
         *x
     }
-    fn process_noise(&self, _x: &Vector1<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix1<f64> {
+    fn process_noise(&self, _x: &Vector1<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix1<f64> {
         match self.0 {
             Fault::NegativeNoise => Matrix1::new(-5.0),
             Fault::Square => Matrix1::new(0.0),
@@ -84,12 +67,6 @@ impl Model for Faulty {
     }
     fn prior(&self) -> Gaussian<U1> {
         Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0))
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
     fn is_linear(&self) -> bool {
         self.0 != Fault::Square

@@ -11,8 +11,8 @@ use sightline::core::nalgebra::{Matrix1, Matrix2, SVector, U0, U1, U2, Vector1, 
 use sightline::core::rng::stream;
 use sightline::filters::build;
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-type NoInput = SVector<f64, 0>;
 
 const RANGE: f64 = 1.0;
 const BEARING: f64 = std::f64::consts::FRAC_PI_2;
@@ -20,41 +20,25 @@ const SD_RANGE: f64 = 0.02;
 const SD_BEARING: f64 = 15.0 * std::f64::consts::PI / 180.0;
 
 /// (range, bearing) ↦ (x, y).
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct PolarToCartesian;
 
 impl Model for PolarToCartesian {
     type State = U2;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "polar-to-cartesian"
+    fn declare(&self) -> Declaration {
+        Declaration::new("polar-to-cartesian", 1.0)
+            .state("range", "m", 0.0, 1.0)
+            .state("bearing", "rad", 0.0, 1.0)
+            .measurement("range", "m")
     }
-    fn state_dim(&self) -> U2 {
-        U2
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("range", "m"), Variable::new("bearing", "rad")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("range", "m")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &Vector2<S>, _u: &NoInput, _t: f64, _dt: f64) -> Vector2<S> {
+    fn transition<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector2<S> {
         Vector2::new(x[0] * x[1].cos(), x[0] * x[1].sin())
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &NoInput, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[0])
     }
-    fn process_noise(&self, _x: &Vector2<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix2<f64> {
+    fn process_noise(&self, _x: &Vector2<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix2<f64> {
         Matrix2::zeros()
     }
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
@@ -65,12 +49,6 @@ impl Model for PolarToCartesian {
             Vector2::new(RANGE, BEARING),
             Matrix2::from_diagonal(&Vector2::new(SD_RANGE.powi(2), SD_BEARING.powi(2))),
         )
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
 }
 

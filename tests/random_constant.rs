@@ -8,11 +8,11 @@ use rand_distr::{Distribution, StandardNormal};
 use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
 use sightline::core::rng::stream;
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-type NoInput = SVector<f64, 0>;
 
 /// x(k+1) = x(k) (no process noise), y = x + v.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct RandomConstant {
     r: f64,
     x0: f64,
@@ -22,35 +22,18 @@ struct RandomConstant {
 impl Model for RandomConstant {
     type State = U1;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "random-constant"
+    fn declare(&self) -> Declaration {
+        Declaration::new("random-constant", 1.0)
+            .state("x", "-", 0.0, 1.0)
+            .measurement("y", "-")
     }
-    fn state_dim(&self) -> U1 {
-        U1
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("x", "-")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("y", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, _t: f64, _dt: f64) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector1<S> {
         *x
     }
-    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &NoInput, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         *x
     }
-    fn process_noise(&self, _x: &Vector1<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix1<f64> {
+    fn process_noise(&self, _x: &Vector1<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix1<f64> {
         Matrix1::new(0.0)
     }
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
@@ -58,12 +41,6 @@ impl Model for RandomConstant {
     }
     fn prior(&self) -> Gaussian<U1> {
         Gaussian::new(Vector1::new(self.x0), Matrix1::new(self.p0))
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
     fn is_linear(&self) -> bool {
         true

@@ -12,6 +12,7 @@ use sightline::models::Cv;
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 
 use common_cli::{expect, json, s, sightline};
+use sightline::prelude::*;
 
 const GAUSSIAN: [&str; 7] = ["kf", "ekf", "iekf", "ukf", "ckf", "ghkf", "srukf"];
 
@@ -71,7 +72,7 @@ fn repair_leaves_a_healthy_filter_bit_for_bit_unchanged() {
     let data = sightline::eval::simulate::simulate(
         &cv,
         &cv.prior(),
-        &cv.default_input(),
+        cv.declare().default_input(),
         300,
         5,
         &Default::default(),
@@ -98,47 +99,30 @@ fn repair_leaves_a_healthy_filter_bit_for_bit_unchanged() {
 
 /// x ↦ x², noise-free, y = x: with α = 0.1 and β = −1 the unscented centre weight is −99.01 and
 /// the predicted variance comes out negative (the case of `tests/numeric_errors.rs`).
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct Square;
 
 impl Model for Square {
     type State = U1;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "square"
-    }
-    fn state_dim(&self) -> U1 {
-        U1
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("x", "-")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("y", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
+    fn declare(&self) -> Declaration {
+        Declaration::new("square", 1.0)
+            .state("x", "-", 0.0, 1.0)
+            .measurement("y", "-")
     }
     fn transition<S: Real>(
         &self,
         x: &Vector1<S>,
-        _: &SVector<f64, 0>,
+        _: &[f64],
         _: f64,
         _: f64,
     ) -> Vector1<S> {
         Vector1::new(x[0] * x[0])
     }
-    fn measure<S: Real>(&self, x: &Vector1<S>, _: &SVector<f64, 0>, _: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> {
         *x
     }
-    fn process_noise(&self, _: &Vector1<f64>, _: &SVector<f64, 0>, _: f64, _: f64) -> Matrix1<f64> {
+    fn process_noise(&self, _: &Vector1<f64>, _: &[f64], _: f64, _: f64) -> Matrix1<f64> {
         Matrix1::new(0.0)
     }
     fn measurement_noise(&self, _: f64) -> Matrix1<f64> {
@@ -146,12 +130,6 @@ impl Model for Square {
     }
     fn prior(&self) -> Gaussian<U1> {
         Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0))
-    }
-    fn default_input(&self) -> SVector<f64, 0> {
-        SVector::<f64, 0>::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
 }
 

@@ -5,11 +5,11 @@
 use sightline::core::nalgebra::{DMatrix, DVector, Dyn, SVector, U0};
 use sightline::eval::simulate::SimOptions;
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-type NoInput = SVector<f64, 0>;
 
 /// `n` random walks, each nudged by its neighbours, each measured directly.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct CoupledWalks {
     n: usize,
 }
@@ -29,42 +29,28 @@ impl CoupledWalks {
 impl Model for CoupledWalks {
     type State = Dyn;
     type Meas = Dyn;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "coupled-walks"
-    }
     fn state_dim(&self) -> Dyn {
         Dyn(self.n)
     }
     fn meas_dim(&self) -> Dyn {
         Dyn(self.n)
     }
-    fn input_dim(&self) -> U0 {
-        U0
+    fn declare(&self) -> Declaration {
+        (0..self.n).fold(Declaration::new("coupled-walks", 1.0), |d, i| {
+            d.state(format!("w{i}"), "-", 0.0, 1.0)
+                .measurement(format!("w{i}"), "-")
+        })
     }
-    fn states(&self) -> Vec<Variable> {
-        (0..self.n)
-            .map(|i| Variable::new(format!("w{i}"), "-"))
-            .collect()
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        (0..self.n)
-            .map(|i| Variable::new(format!("w{i}"), "-"))
-            .collect()
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &DVector<S>, _u: &NoInput, _t: f64, _dt: f64) -> DVector<S> {
+    fn transition<S: Real>(&self, x: &DVector<S>, _u: &[f64], _t: f64, _dt: f64) -> DVector<S> {
         let a = self.coupling();
         DVector::from_fn(self.n, |i, _| {
             (0..self.n).fold(S::from(0.0), |acc, j| acc + x[j] * a[(i, j)])
         })
     }
-    fn measure<S: Real>(&self, x: &DVector<S>, _u: &NoInput, _t: f64) -> DVector<S> {
+    fn measure<S: Real>(&self, x: &DVector<S>, _u: &[f64], _t: f64) -> DVector<S> {
         x.clone()
     }
-    fn process_noise(&self, _x: &DVector<f64>, _u: &NoInput, _t: f64, dt: f64) -> DMatrix<f64> {
+    fn process_noise(&self, _x: &DVector<f64>, _u: &[f64], _t: f64, dt: f64) -> DMatrix<f64> {
         DMatrix::from_fn(
             self.n,
             self.n,
@@ -76,12 +62,6 @@ impl Model for CoupledWalks {
     }
     fn prior(&self) -> Gaussian<Dyn> {
         Gaussian::new(DVector::zeros(self.n), DMatrix::identity(self.n, self.n))
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
     fn is_linear(&self) -> bool {
         true

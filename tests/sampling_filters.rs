@@ -338,53 +338,37 @@ fn collapse_is_a_typed_error_or_a_counted_redraw() {
 
 /// A constant-velocity plant with both position and velocity measured, to exercise missing
 /// components of a multi-component measurement (F and Q as in `cv`; Bar-Shalom et al. 2001).
-#[derive(Clone)]
+#[derive(Clone, sightline::prelude::Parameters)]
+#[parameters(crate = "sightline::core")]
 struct TwoSensors;
 
 mod two_sensors {
     use super::TwoSensors;
-    use sightline::nalgebra::{Matrix2, U0, U2, Vector2};
-    use sightline::{Gaussian, Model, Real, Variable};
-    type NoInput = sightline::nalgebra::SVector<f64, 0>;
+    use sightline::prelude::*;
 
     impl Model for TwoSensors {
         type State = U2;
         type Meas = U2;
-        type Input = U0;
-        fn name(&self) -> &str {
-            "two-sensors"
-        }
-        fn state_dim(&self) -> U2 {
-            U2
-        }
-        fn meas_dim(&self) -> U2 {
-            U2
-        }
-        fn input_dim(&self) -> U0 {
-            U0
-        }
-        fn states(&self) -> Vec<Variable> {
-            vec![Variable::new("pos", "m"), Variable::new("vel", "m/s")]
-        }
-        fn measurements(&self) -> Vec<Variable> {
-            vec![Variable::new("pos", "m"), Variable::new("vel", "m/s")]
-        }
-        fn inputs(&self) -> Vec<Variable> {
-            Vec::new()
-        }
+    fn declare(&self) -> Declaration {
+        Declaration::new("two-sensors", 0.1)
+            .state("pos", "m", 0.0, 1.0)
+            .state("vel", "m/s", 0.0, 1.0)
+            .measurement("pos", "m")
+            .measurement("vel", "m/s")
+    }
         fn transition<S: Real>(
             &self,
             x: &Vector2<S>,
-            _u: &NoInput,
+            _u: &[f64],
             _t: f64,
             dt: f64,
         ) -> Vector2<S> {
             Vector2::new(x[0] + x[1] * dt, x[1])
         }
-        fn measure<S: Real>(&self, x: &Vector2<S>, _u: &NoInput, _t: f64) -> Vector2<S> {
+        fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector2<S> {
             *x
         }
-        fn process_noise(&self, _x: &Vector2<f64>, _u: &NoInput, _t: f64, dt: f64) -> Matrix2<f64> {
+        fn process_noise(&self, _x: &Vector2<f64>, _u: &[f64], _t: f64, dt: f64) -> Matrix2<f64> {
             0.5 * Matrix2::new(dt.powi(3) / 3.0, dt.powi(2) / 2.0, dt.powi(2) / 2.0, dt)
         }
         fn measurement_noise(&self, _t: f64) -> Matrix2<f64> {
@@ -392,12 +376,6 @@ mod two_sensors {
         }
         fn prior(&self) -> Gaussian<U2> {
             Gaussian::new(Vector2::new(0.0, 1.0), Matrix2::identity())
-        }
-        fn default_input(&self) -> NoInput {
-            NoInput::zeros()
-        }
-        fn dt(&self) -> f64 {
-            0.1
         }
         fn is_linear(&self) -> bool {
             true

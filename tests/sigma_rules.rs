@@ -9,6 +9,7 @@ use sightline::core::nalgebra::{Matrix1, Matrix2, SVector, U0, U1, U2, Vector1, 
 use sightline::core::sigma::gauss_hermite;
 use sightline::filters::build;
 use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
 /// E[ξᵏ] for ξ ~ N(0, 1): (k−1)!! for even k, 0 for odd k (closed form).
 fn standard_normal_moment(k: u32) -> f64 {
@@ -173,10 +174,9 @@ fn gauss_hermite_of_order_p_is_exact_to_degree_2p_minus_1_and_no_further() {
     }
 }
 
-type NoInput = SVector<f64, 0>;
 
 /// A cubic map of the state, x ↦ f(x), with no process noise: the predicted mean is E[f(x)].
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct CubicMap {
     mean: Vector2<f64>,
     cov: Matrix2<f64>,
@@ -185,39 +185,23 @@ struct CubicMap {
 impl Model for CubicMap {
     type State = U2;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "cubic-map"
+    fn declare(&self) -> Declaration {
+        Declaration::new("cubic-map", 1.0)
+            .state("a", "-", 0.0, 1.0)
+            .state("b", "-", 0.0, 1.0)
+            .measurement("a", "-")
     }
-    fn state_dim(&self) -> U2 {
-        U2
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("a", "-"), Variable::new("b", "-")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("a", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
-    }
-    fn transition<S: Real>(&self, x: &Vector2<S>, _u: &NoInput, _t: f64, _dt: f64) -> Vector2<S> {
+    fn transition<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector2<S> {
         let (a, b) = (x[0], x[1]);
         Vector2::new(
             a * a * a - a * b * b * 2.0 + a * b * 0.5 + b - S::from(1.0),
             b * b * b * 3.0 + a * a * b - a + S::from(2.0),
         )
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &NoInput, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[0])
     }
-    fn process_noise(&self, _x: &Vector2<f64>, _u: &NoInput, _t: f64, _dt: f64) -> Matrix2<f64> {
+    fn process_noise(&self, _x: &Vector2<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix2<f64> {
         Matrix2::zeros()
     }
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
@@ -225,12 +209,6 @@ impl Model for CubicMap {
     }
     fn prior(&self) -> Gaussian<U2> {
         Gaussian::new(self.mean, self.cov)
-    }
-    fn default_input(&self) -> NoInput {
-        NoInput::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
 }
 

@@ -200,7 +200,11 @@ fn models_lists_every_plant_with_parameters_defaults_and_units() {
             plant.name()
         );
         for p in plant.parameters() {
-            assert!(text.contains(p.name), "{}: {}", plant.name(), p.name);
+            // The prior's `x0.<state>` and `sd0.<state>` of a long state list are elided.
+            let elided = plant.states().len() > 8 && p.name.contains('.');
+            if !elided {
+                assert!(text.contains(p.name.as_ref()), "{}: {}", plant.name(), p.name);
+            }
         }
     }
     // A published value shown as typed, with its unit (Johansson 2000, Table I, from memory).

@@ -8,51 +8,35 @@
 
 use sightline::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
 use sightline::{Gaussian, Model, Real, Variable};
+use sightline::prelude::*;
 
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Parameters)]
 struct RootWalk;
 
 impl Model for RootWalk {
     type State = U1;
     type Meas = U1;
-    type Input = U0;
-    fn name(&self) -> &str {
-        "root-walk"
-    }
-    fn state_dim(&self) -> U1 {
-        U1
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U0 {
-        U0
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("level", "m")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("root", "m^0.5")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        Vec::new()
+    fn declare(&self) -> Declaration {
+        Declaration::new("root-walk", 1.0)
+            .state("level", "m", 0.0, 1.0)
+            .measurement("root", "m^0.5")
     }
     fn transition<S: Real>(
         &self,
         x: &Vector1<S>,
-        _: &SVector<f64, 0>,
+        _: &[f64],
         _: f64,
         _: f64,
     ) -> Vector1<S> {
         *x
     }
-    fn measure<S: Real>(&self, x: &Vector1<S>, _: &SVector<f64, 0>, _: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> {
         Vector1::new(x[0].sqrt())
     }
     fn process_noise(
         &self,
         _: &Vector1<f64>,
-        _: &SVector<f64, 0>,
+        _: &[f64],
         _: f64,
         dt: f64,
     ) -> Matrix1<f64> {
@@ -63,12 +47,6 @@ impl Model for RootWalk {
     }
     fn prior(&self) -> Gaussian<U1> {
         Gaussian::new(Vector1::new(1.0), Matrix1::new(4.0))
-    }
-    fn default_input(&self) -> SVector<f64, 0> {
-        SVector::<f64, 0>::zeros()
-    }
-    fn dt(&self) -> f64 {
-        1.0
     }
 }
 

@@ -47,7 +47,7 @@ impl BareCloud {
     /// nothing is optimised away.
     pub fn sweep(&mut self, prev: &Record, r: &Record, step: u64) -> f64 {
         let model = &self.model;
-        let u = Vector1::new(prev.u[0]);
+        let u = [prev.u[0]];
         let (t, dt) = (prev.t, r.t - prev.t);
         let q = model.process_noise(&Vector2::new(self.cloud[0], self.cloud[1]), &u, t, dt);
         let factor = Cholesky::new(q).map(|c| c.l()).unwrap_or_default();

@@ -34,7 +34,7 @@ proptest! {
         for plant in shipped() {
             for param in plant.parameters() {
                 let mut p = plant.clone_box();
-                prop_assert!(p.set(param.name, param.value).is_ok(), "{} rejects its default", param.name);
+                prop_assert!(p.set(&param.name, param.value).is_ok(), "{} rejects its default", param.name);
                 let bad = match param.domain {
                     sightline_core::Domain::Positive => Some(-scale),
                     sightline_core::Domain::NonNegative => Some(-scale),
@@ -43,8 +43,8 @@ proptest! {
                     sightline_core::Domain::Finite => None,
                 };
                 if let Some(bad) = bad {
-                    let err = p.set(param.name, bad).unwrap_err().to_string();
-                    prop_assert!(err.contains(param.name), "{err}");
+                    let err = p.set(&param.name, bad).unwrap_err().to_string();
+                    prop_assert!(err.contains(param.name.as_ref()), "{err}");
                 }
             }
         }

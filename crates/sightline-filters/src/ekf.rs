@@ -35,23 +35,17 @@ pub const INFO: KindInfo = KindInfo {
 /// Extended Kalman filter over plant `M`.
 ///
 /// ```
-/// # use sightline_core::nalgebra::{Matrix1, Vector1, U1};
-/// # use sightline_core::{Gaussian, Model, Real, Variable};
-/// # #[derive(Clone)] struct Drift;
+/// # use sightline_core::prelude::*;
+/// # #[derive(Clone, Parameters)] struct Drift;
 /// # impl Model for Drift {
-/// #   type State = U1; type Meas = U1; type Input = U1;
-/// #   fn name(&self) -> &str { "drift" }
-/// #   fn state_dim(&self) -> U1 { U1 } fn meas_dim(&self) -> U1 { U1 } fn input_dim(&self) -> U1 { U1 }
-/// #   fn states(&self) -> Vec<Variable> { vec![Variable::new("x", "-")] }
-/// #   fn measurements(&self) -> Vec<Variable> { vec![Variable::new("y", "-")] }
-/// #   fn inputs(&self) -> Vec<Variable> { vec![Variable::new("u", "-")] }
-/// #   fn transition<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64, _: f64) -> Vector1<S> { *x }
-/// #   fn measure<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64) -> Vector1<S> { *x }
-/// #   fn process_noise(&self, _: &Vector1<f64>, _: &Vector1<f64>, _: f64, _: f64) -> Matrix1<f64> { Matrix1::new(0.0) }
+/// #   type State = U1; type Meas = U1;
+/// #   fn declare(&self) -> Declaration {
+/// #       Declaration::new("drift", 1.0).state("x", "-", 0.0, 1.0).measurement("y", "-").input("u", "-", 0.0)
+/// #   }
+/// #   fn transition<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64, _: f64) -> Vector1<S> { *x }
+/// #   fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> { *x }
+/// #   fn process_noise(&self, _: &Vector1<f64>, _: &[f64], _: f64, _: f64) -> Matrix1<f64> { Matrix1::new(0.0) }
 /// #   fn measurement_noise(&self, _: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
-/// #   fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
-/// #   fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
-/// #   fn dt(&self) -> f64 { 1.0 }
 /// # }
 /// use sightline_filters::{Ekf, Filter};
 /// let mut ekf = Ekf::new(Drift, Drift.prior(), "ekf");

@@ -236,37 +236,28 @@ where
 /// A particle filter over plant `M`; see the module docs.
 ///
 /// ```
-/// use sightline_core::nalgebra::{Matrix1, Vector1, U1};
-/// use sightline_core::{Gaussian, Model, Real, Variable};
+/// use sightline_core::prelude::*;
 /// use sightline_filters::pf::{ParticleFilter, PfConfig};
 /// use sightline_filters::Filter;
 ///
 /// /// A scalar random walk seen directly.
-/// #[derive(Clone)]
+/// #[derive(Clone, Parameters)]
 /// struct Walk;
 /// impl Model for Walk {
 ///     type State = U1;
 ///     type Meas = U1;
-///     type Input = U1;
-///     fn name(&self) -> &str { "walk" }
-///     fn state_dim(&self) -> U1 { U1 }
-///     fn meas_dim(&self) -> U1 { U1 }
-///     fn input_dim(&self) -> U1 { U1 }
-///     fn states(&self) -> Vec<Variable> { vec![Variable::new("x", "m")] }
-///     fn measurements(&self) -> Vec<Variable> { vec![Variable::new("x", "m")] }
-///     fn inputs(&self) -> Vec<Variable> { vec![Variable::new("unused", "-")] }
-///     fn transition<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64, _dt: f64) -> Vector1<S> { *x }
-///     fn measure<S: Real>(&self, x: &Vector1<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> { *x }
-///     fn process_noise(&self, _x: &Vector1<f64>, _u: &Vector1<f64>, _t: f64, _dt: f64) -> Matrix1<f64> { Matrix1::new(0.1) }
+///     fn declare(&self) -> Declaration {
+///         Declaration::new("walk", 1.0).state("x", "m", 0.0, 1.0).measurement("x", "m")
+///     }
+///     fn transition<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64, _dt: f64) -> Vector1<S> { *x }
+///     fn process_noise(&self, _x: &Vector1<f64>, _u: &[f64], _t: f64, _dt: f64) -> Matrix1<f64> { Matrix1::new(0.1) }
+///     fn measure<S: Real>(&self, x: &Vector1<S>, _u: &[f64], _t: f64) -> Vector1<S> { *x }
 ///     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
-///     fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
-///     fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
-///     fn dt(&self) -> f64 { 1.0 }
 /// }
 ///
 /// let config = PfConfig { particles: 4000, ..PfConfig::default() };
 /// let mut pf = ParticleFilter::new(Walk, Walk.prior(), config, "pf", 7).unwrap();
-/// pf.update(&[1.0], &[0.0], 0.0).unwrap();
+/// pf.update(&[1.0], &[], 0.0).unwrap();
 /// // Conjugate Gaussian update of N(0, 1) by y = 1 with R = 1: posterior mean 0.5.
 /// assert!((pf.mean()[0] - 0.5).abs() < 0.05);
 /// ```

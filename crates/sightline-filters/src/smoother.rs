@@ -138,24 +138,18 @@ pub struct SmootherFailure {
 /// every epoch: `transitions.len() + 1` of them.
 ///
 /// ```
-/// use sightline_core::nalgebra::{Matrix1, Vector1, U1};
-/// use sightline_core::{Gaussian, Model, Real, Variable};
 /// use sightline_filters::smoother::{GaussianTransition, rts};
-/// # #[derive(Clone)] struct Walk;
+/// # use sightline_core::prelude::*;
+/// # #[derive(Clone, Parameters)] struct Walk;
 /// # impl Model for Walk {
-/// #   type State = U1; type Meas = U1; type Input = U1;
-/// #   fn name(&self) -> &str { "walk" }
-/// #   fn state_dim(&self) -> U1 { U1 } fn meas_dim(&self) -> U1 { U1 } fn input_dim(&self) -> U1 { U1 }
-/// #   fn states(&self) -> Vec<Variable> { vec![Variable::new("x", "-")] }
-/// #   fn measurements(&self) -> Vec<Variable> { vec![Variable::new("y", "-")] }
-/// #   fn inputs(&self) -> Vec<Variable> { vec![Variable::new("u", "-")] }
-/// #   fn transition<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64, _: f64) -> Vector1<S> { *x }
-/// #   fn measure<S: Real>(&self, x: &Vector1<S>, _: &Vector1<f64>, _: f64) -> Vector1<S> { *x }
-/// #   fn process_noise(&self, _: &Vector1<f64>, _: &Vector1<f64>, _: f64, _: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
+/// #   type State = U1; type Meas = U1;
+/// #   fn declare(&self) -> Declaration {
+/// #       Declaration::new("walk", 1.0).state("x", "-", 0.0, 1.0).measurement("y", "-").input("u", "-", 0.0)
+/// #   }
+/// #   fn transition<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64, _: f64) -> Vector1<S> { *x }
+/// #   fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> { *x }
+/// #   fn process_noise(&self, _: &Vector1<f64>, _: &[f64], _: f64, _: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
 /// #   fn measurement_noise(&self, _: f64) -> Matrix1<f64> { Matrix1::new(1.0) }
-/// #   fn prior(&self) -> Gaussian<U1> { Gaussian::new(Vector1::new(0.0), Matrix1::new(1.0)) }
-/// #   fn default_input(&self) -> Vector1<f64> { Vector1::new(0.0) }
-/// #   fn dt(&self) -> f64 { 1.0 }
 /// # }
 /// // A random walk x(1) = x(0) + w, Var w = 1, from N(0, 1) at k = 0, seen once at k = 1 as
 /// // y = 2 with unit noise: P⁻ = 2, filtered x(1) ~ N(4/3, 2/3), and x(0) | y ~ N(2/3, 2/3).

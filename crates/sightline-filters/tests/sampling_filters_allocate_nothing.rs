@@ -10,8 +10,9 @@ use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 use sightline_core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
-use sightline_core::{Gaussian, Model, Real, Variable};
+use sightline_core::{Gaussian, Model, Real};
 use sightline_filters::{Filter, FilterSpec, build};
+use sightline_core::prelude::*;
 
 struct Counting;
 
@@ -47,47 +48,32 @@ static GLOBAL: Counting = Counting;
 
 /// A nonlinear two-state plant with static sizes: a damped oscillator seen through a saturating
 /// sensor (any static-size plant would do; nonlinearity keeps the weights uneven).
-#[derive(Clone)]
+#[derive(Clone, Parameters)]
 struct Oscillator;
 
 impl Model for Oscillator {
     type State = U2;
     type Meas = U1;
-    type Input = U1;
-    fn name(&self) -> &str {
-        "oscillator"
-    }
-    fn state_dim(&self) -> U2 {
-        U2
-    }
-    fn meas_dim(&self) -> U1 {
-        U1
-    }
-    fn input_dim(&self) -> U1 {
-        U1
-    }
-    fn states(&self) -> Vec<Variable> {
-        vec![Variable::new("p", "m"), Variable::new("v", "m/s")]
-    }
-    fn measurements(&self) -> Vec<Variable> {
-        vec![Variable::new("s", "-")]
-    }
-    fn inputs(&self) -> Vec<Variable> {
-        vec![Variable::new("f", "N")]
+    fn declare(&self) -> Declaration {
+        Declaration::new("oscillator", 0.1)
+            .state("p", "m", 0.0, 1.0)
+            .state("v", "m/s", 0.0, 1.0)
+            .measurement("s", "-")
+            .input("f", "N", 0.0)
     }
     fn transition<S: Real>(
         &self,
         x: &Vector2<S>,
-        u: &Vector1<f64>,
+        u: &[f64],
         _t: f64,
         dt: f64,
     ) -> Vector2<S> {
         Vector2::new(x[0] + x[1] * dt, x[1] - (x[0] + x[1] * 0.2 - u[0]) * dt)
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &Vector1<f64>, _t: f64) -> Vector1<S> {
+    fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
         Vector1::new(x[0].tanh())
     }
-    fn process_noise(&self, x: &Vector2<f64>, _u: &Vector1<f64>, _t: f64, dt: f64) -> Matrix2<f64> {
+    fn process_noise(&self, x: &Vector2<f64>, _u: &[f64], _t: f64, dt: f64) -> Matrix2<f64> {
         Matrix2::new(1e-3, 0.0, 0.0, 0.05 * (1.0 + 0.1 * x[0].abs())) * dt
     }
     fn measurement_noise(&self, _t: f64) -> Matrix1<f64> {
@@ -95,12 +81,6 @@ impl Model for Oscillator {
     }
     fn prior(&self) -> Gaussian<U2> {
         Gaussian::new(Vector2::new(0.5, 0.0), Matrix2::new(0.2, 0.0, 0.0, 0.2))
-    }
-    fn default_input(&self) -> Vector1<f64> {
-        Vector1::new(0.0)
-    }
-    fn dt(&self) -> f64 {
-        0.1
     }
     fn project(&self, x: &mut Vector2<f64>) {
         x[0] = x[0].clamp(-10.0, 10.0);

@@ -73,7 +73,7 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
         let (prior, model_params): (Vec<_>, Vec<_>) = params
             .iter()
             .partition(|q| q.name.starts_with("x0.") || q.name.starts_with("sd0."));
-        let value = |name: String| {
+        let value = |name: &str| {
             prior
                 .iter()
                 .find(|q| q.name == name)
@@ -84,16 +84,14 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
             elide(
                 p.states()
                     .iter()
-                    .map(|v| format!(
-                        "{} ~ {} ± {}",
-                        v.name,
-                        number(value(format!("x0.{}", v.name)), false),
-                        number(value(format!("sd0.{}", v.name)), false)
-                    ))
+                    .map(|v| {
+                        let (mean, sd) = (format!("x0.{}", v.name), format!("sd0.{}", v.name));
+                        let (m, s) = (number(value(&mean), false), number(value(&sd), false));
+                        format!("{mean}={m} {sd}={s}")
+                    })
                     .collect()
             )
         ));
-        out.push_str("                (set with --set x0.<state>=MEAN, --set sd0.<state>=SD)\n");
         let mut table = Table::new();
         table.load_style(UTF8_FULL_CONDENSED);
         table.set_header(vec!["parameter", "default", "unit", "allowed", "meaning"]);
