@@ -25,7 +25,6 @@ use criterion::{
     BenchmarkGroup, Criterion, criterion_group, criterion_main, measurement::WallTime,
 };
 use sightline::core::Alloc;
-use sightline::core::ad::Differentiable;
 use sightline::eval::dataset::Dataset;
 use sightline::eval::simulate::SimOptions;
 use sightline::filters::JacobianSource;

@@ -35,7 +35,10 @@ fn derived_process_noise_matches_scipy_for_a_nonlinear_plant() {
         let q = plant.process_noise(&Vector2::new(state[0], state[1]), &[], 0.0, dt);
         let q = DMatrix::from_column_slice(2, 2, q.as_slice());
         let error = (&q - &expected).abs().max() / expected.abs().max();
-        assert!(error <= 1e-10, "{case}: {q} vs scipy {expected} ({error:e})");
+        assert!(
+            error <= 1e-10,
+            "{case}: {q} vs scipy {expected} ({error:e})"
+        );
         worst = worst.max(error);
     }
     eprintln!("worst relative error of the derived Q: {worst:.1e}");
@@ -109,12 +112,20 @@ fn derived_pendulum_equals_the_hand_written_path() {
                 derived.process_noise(&x, &[torque], 0.0, dt),
                 hand.process_noise(&x, &[torque], 0.0, dt),
             );
-            assert_eq!(bits(a.as_slice()), bits(b.as_slice()), "Q at {x}, dt = {dt}");
+            assert_eq!(
+                bits(a.as_slice()),
+                bits(b.as_slice()),
+                "Q at {x}, dt = {dt}"
+            );
             let (a, b) = (
                 derived.transition(&x, &[torque], 0.0, dt),
                 hand.transition(&x, &[torque], 0.0, dt),
             );
-            assert_eq!(bits(a.as_slice()), bits(b.as_slice()), "f at {x}, dt = {dt}");
+            assert_eq!(
+                bits(a.as_slice()),
+                bits(b.as_slice()),
+                "f at {x}, dt = {dt}"
+            );
         }
     }
     let plant = sightline::plant(derived.clone());
@@ -130,7 +141,13 @@ fn derived_pendulum_equals_the_hand_written_path() {
         for row in &data.records {
             common::step(a.as_mut(), previous, row.t, &row.y, &row.u).unwrap();
             common::step(b.as_mut(), previous, row.t, &row.y, &row.u).unwrap();
-            assert_eq!(bits(a.mean()), bits(b.mean()), "{} at t = {}", spec.label, row.t);
+            assert_eq!(
+                bits(a.mean()),
+                bits(b.mean()),
+                "{} at t = {}",
+                spec.label,
+                row.t
+            );
             assert_eq!(bits(a.covariance()), bits(b.covariance()));
             previous = Some((row.t, &row.u));
         }

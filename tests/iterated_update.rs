@@ -2,11 +2,10 @@
 //! at convergence its mean is a stationary point of
 //! J(x) = ½(x − x̄)²/P + ½(y − h(x))²/R, and with one iteration it is the EKF.
 
-use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
+use sightline::core::nalgebra::{Matrix1, U1, Vector1};
 use sightline::filters::{Filter, build};
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
-
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 const PRIOR_MEAN: f64 = 1.0;
 const PRIOR_VAR: f64 = 0.5;

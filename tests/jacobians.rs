@@ -4,7 +4,7 @@
 use rand::RngExt;
 use sightline::Model;
 use sightline::core::ad::Differentiable;
-use sightline::core::nalgebra::{Matrix1x2, Matrix2, U2, Vector1, Vector2};
+use sightline::core::nalgebra::{Matrix1x2, Matrix2, U2, Vector2};
 use sightline::core::rng::stream;
 use sightline::filters::linearise::{MeasureFn, TransitionFn};
 use sightline::models::Pendulum;

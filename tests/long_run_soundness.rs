@@ -29,7 +29,6 @@
 mod common;
 
 use sightline::FilterSpec;
-use sightline::core::ad::Differentiable;
 use sightline::core::{Alloc, Model};
 use sightline::eval::simulate::{SimOptions, simulate_each};
 use sightline::filters::{Filter, build};

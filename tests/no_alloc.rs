@@ -8,12 +8,12 @@ mod common;
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell;
 
-use sightline::core::nalgebra::{Matrix2, U1, U2, Vector1, Vector2};
+use sightline::core::nalgebra::{Matrix2, U2, Vector2};
 use sightline::eval::simulate::SimOptions;
 use sightline::filters::Filter;
 use sightline::models::Pendulum;
-use sightline::{AnyPlant, FilterSpec, Gaussian, Model, Real, Variable, shipped};
 use sightline::prelude::*;
+use sightline::{AnyPlant, FilterSpec, Gaussian, Model, Real, shipped};
 
 struct Counting;
 

@@ -4,11 +4,10 @@
 mod common;
 
 use sightline::core::NumericError;
-use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
+use sightline::core::nalgebra::{Matrix1, U1, Vector1};
 use sightline::filters::{FilterError, build};
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
-
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Fault {

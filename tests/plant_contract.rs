@@ -12,7 +12,15 @@ fn unknown_set_names_are_refused_with_the_valid_list() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("p.csv");
     let run = sightline(&[
-        "simulate", "pendulum", "--steps", "5", "--seed", "1", "--set", "lenght=2", "-o",
+        "simulate",
+        "pendulum",
+        "--steps",
+        "5",
+        "--seed",
+        "1",
+        "--set",
+        "lenght=2",
+        "-o",
         s(&out),
     ]);
     assert_eq!(run.status.code(), Some(2));
@@ -27,13 +35,31 @@ fn unknown_set_names_are_refused_with_the_valid_list() {
     assert!(!out.exists(), "nothing is written on a usage error");
     // A framework name of a state the plant does not have is just as unknown.
     let run = sightline(&[
-        "simulate", "cv", "--steps", "5", "--seed", "1", "--set", "sd0.angle=2", "-o", s(&out),
+        "simulate",
+        "cv",
+        "--steps",
+        "5",
+        "--seed",
+        "1",
+        "--set",
+        "sd0.angle=2",
+        "-o",
+        s(&out),
     ]);
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("sd0.pos, sd0.vel"));
     // And a prior spread must be positive.
     let run = sightline(&[
-        "simulate", "cv", "--steps", "5", "--seed", "1", "--set", "sd0.vel=0", "-o", s(&out),
+        "simulate",
+        "cv",
+        "--steps",
+        "5",
+        "--seed",
+        "1",
+        "--set",
+        "sd0.vel=0",
+        "-o",
+        s(&out),
     ]);
     assert_eq!(run.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&run.stderr).contains("'sd0.vel' of model 'cv' must be > 0"));
@@ -50,18 +76,48 @@ fn tune_recovers_a_known_initial_state() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("cv.csv");
     let truth = [
-        "--set", "x0.pos=3", "--set", "sd0.pos=0.001", "--set", "sd0.vel=0.001", "--set",
+        "--set",
+        "x0.pos=3",
+        "--set",
+        "sd0.pos=0.001",
+        "--set",
+        "sd0.vel=0.001",
+        "--set",
         "q=1e-9",
     ];
-    let mut args = vec!["simulate", "cv", "--steps", "200", "--seed", "5", "-o", s(&data)];
+    let mut args = vec![
+        "simulate",
+        "cv",
+        "--steps",
+        "200",
+        "--seed",
+        "5",
+        "-o",
+        s(&data),
+    ];
     args.extend(truth);
     expect(&args, 0);
     // Start the search 1.5 m off, with a wide prior on the position so the data decide.
     let out = dir.path().join("tuned");
     expect(
         &[
-            "tune", "cv", s(&data), "-f", "kf", "--param", "x0.pos", "--set", "x0.pos=1.5",
-            "--set", "sd0.pos=0.001", "--set", "sd0.vel=0.001", "--set", "q=1e-9", "-o", s(&out),
+            "tune",
+            "cv",
+            s(&data),
+            "-f",
+            "kf",
+            "--param",
+            "x0.pos",
+            "--set",
+            "x0.pos=1.5",
+            "--set",
+            "sd0.pos=0.001",
+            "--set",
+            "sd0.vel=0.001",
+            "--set",
+            "q=1e-9",
+            "-o",
+            s(&out),
         ],
         0,
     );
@@ -70,5 +126,8 @@ fn tune_recovers_a_known_initial_state() {
     assert_eq!(tuned["start"]["x0.pos"].as_f64(), Some(1.5));
     let sd = (0.25f64 / 200.0).sqrt();
     assert!((x0 - 3.0).abs() < 4.0 * sd, "tuned x0.pos = {x0}");
-    assert!((x0 - 1.5).abs() > 1.0, "the search moved from its start: {x0}");
+    assert!(
+        (x0 - 1.5).abs() > 1.0,
+        "the search moved from its start: {x0}"
+    );
 }

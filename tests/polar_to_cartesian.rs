@@ -7,12 +7,11 @@
 //! plant transition with no process noise, so the filters' predicted means are the transforms'.
 
 use rand_distr::{Distribution, StandardNormal};
-use sightline::core::nalgebra::{Matrix1, Matrix2, SVector, U0, U1, U2, Vector1, Vector2};
+use sightline::core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
 use sightline::core::rng::stream;
 use sightline::filters::build;
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
-
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 const RANGE: f64 = 1.0;
 const BEARING: f64 = std::f64::consts::FRAC_PI_2;

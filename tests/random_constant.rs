@@ -5,11 +5,10 @@
 mod common;
 
 use rand_distr::{Distribution, StandardNormal};
-use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
+use sightline::core::nalgebra::{Matrix1, U1, Vector1};
 use sightline::core::rng::stream;
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
-
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 /// x(k+1) = x(k) (no process noise), y = x + v.
 #[derive(Debug, Clone, Parameters)]

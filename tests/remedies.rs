@@ -6,10 +6,10 @@
 mod common;
 mod common_cli;
 
-use sightline::core::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
+use sightline::core::nalgebra::{Matrix1, U1, Vector1};
 use sightline::filters::{Filter, build};
 use sightline::models::Cv;
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 use common_cli::{expect, json, s, sightline};
 use sightline::prelude::*;
@@ -110,13 +110,7 @@ impl Model for Square {
             .state("x", "-", 0.0, 1.0)
             .measurement("y", "-")
     }
-    fn transition<S: Real>(
-        &self,
-        x: &Vector1<S>,
-        _: &[f64],
-        _: f64,
-        _: f64,
-    ) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64, _: f64) -> Vector1<S> {
         Vector1::new(x[0] * x[0])
     }
     fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> {

@@ -2,11 +2,10 @@
 //! and — being linear and Gaussian — every filter reproduces the Kalman filter on it (the Kalman
 //! filter is exact there and every rule of degree ≥ 3 integrates it exactly: common practice).
 
-use sightline::core::nalgebra::{DMatrix, DVector, Dyn, SVector, U0};
+use sightline::core::nalgebra::{DMatrix, DVector, Dyn};
 use sightline::eval::simulate::SimOptions;
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
-
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 /// `n` random walks, each nudged by its neighbours, each measured directly.
 #[derive(Debug, Clone, Parameters)]

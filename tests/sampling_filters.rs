@@ -349,20 +349,14 @@ mod two_sensors {
     impl Model for TwoSensors {
         type State = U2;
         type Meas = U2;
-    fn declare(&self) -> Declaration {
-        Declaration::new("two-sensors", 0.1)
-            .state("pos", "m", 0.0, 1.0)
-            .state("vel", "m/s", 0.0, 1.0)
-            .measurement("pos", "m")
-            .measurement("vel", "m/s")
-    }
-        fn transition<S: Real>(
-            &self,
-            x: &Vector2<S>,
-            _u: &[f64],
-            _t: f64,
-            dt: f64,
-        ) -> Vector2<S> {
+        fn declare(&self) -> Declaration {
+            Declaration::new("two-sensors", 0.1)
+                .state("pos", "m", 0.0, 1.0)
+                .state("vel", "m/s", 0.0, 1.0)
+                .measurement("pos", "m")
+                .measurement("vel", "m/s")
+        }
+        fn transition<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64, dt: f64) -> Vector2<S> {
             Vector2::new(x[0] + x[1] * dt, x[1])
         }
         fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector2<S> {

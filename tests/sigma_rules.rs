@@ -5,11 +5,11 @@
 mod common;
 
 use sightline::core::SigmaRule;
-use sightline::core::nalgebra::{Matrix1, Matrix2, SVector, U0, U1, U2, Vector1, Vector2};
+use sightline::core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
 use sightline::core::sigma::gauss_hermite;
 use sightline::filters::build;
-use sightline::{FilterSpec, Gaussian, Model, Real, Variable};
 use sightline::prelude::*;
+use sightline::{FilterSpec, Gaussian, Model, Real};
 
 /// E[ξᵏ] for ξ ~ N(0, 1): (k−1)!! for even k, 0 for odd k (closed form).
 fn standard_normal_moment(k: u32) -> f64 {
@@ -173,7 +173,6 @@ fn gauss_hermite_of_order_p_is_exact_to_degree_2p_minus_1_and_no_further() {
         }
     }
 }
-
 
 /// A cubic map of the state, x ↦ f(x), with no process noise: the predicted mean is E[f(x)].
 #[derive(Debug, Clone, Parameters)]

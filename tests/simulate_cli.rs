@@ -203,7 +203,12 @@ fn models_lists_every_plant_with_parameters_defaults_and_units() {
             // The prior's `x0.<state>` and `sd0.<state>` of a long state list are elided.
             let elided = plant.states().len() > 8 && p.name.contains('.');
             if !elided {
-                assert!(text.contains(p.name.as_ref()), "{}: {}", plant.name(), p.name);
+                assert!(
+                    text.contains(p.name.as_ref()),
+                    "{}: {}",
+                    plant.name(),
+                    p.name
+                );
             }
         }
     }

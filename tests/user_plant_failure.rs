@@ -6,9 +6,9 @@
 //! and σ = 2 one point is negative and its √ is NaN at the first update, while the EKF linearises
 //! at the mean and stays at x > 0.
 
-use sightline::nalgebra::{Matrix1, SVector, U0, U1, Vector1};
-use sightline::{Gaussian, Model, Real, Variable};
+use sightline::nalgebra::{Matrix1, U1, Vector1};
 use sightline::prelude::*;
+use sightline::{Gaussian, Model, Real};
 
 #[derive(Debug, Clone, Parameters)]
 struct RootWalk;
@@ -21,25 +21,13 @@ impl Model for RootWalk {
             .state("level", "m", 0.0, 1.0)
             .measurement("root", "m^0.5")
     }
-    fn transition<S: Real>(
-        &self,
-        x: &Vector1<S>,
-        _: &[f64],
-        _: f64,
-        _: f64,
-    ) -> Vector1<S> {
+    fn transition<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64, _: f64) -> Vector1<S> {
         *x
     }
     fn measure<S: Real>(&self, x: &Vector1<S>, _: &[f64], _: f64) -> Vector1<S> {
         Vector1::new(x[0].sqrt())
     }
-    fn process_noise(
-        &self,
-        _: &Vector1<f64>,
-        _: &[f64],
-        _: f64,
-        dt: f64,
-    ) -> Matrix1<f64> {
+    fn process_noise(&self, _: &Vector1<f64>, _: &[f64], _: f64, dt: f64) -> Matrix1<f64> {
         Matrix1::new(1e-4 * dt)
     }
     fn measurement_noise(&self, _: f64) -> Matrix1<f64> {

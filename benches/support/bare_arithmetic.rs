@@ -10,7 +10,7 @@ use sightline::Model;
 use sightline::core::rng::stream;
 use sightline::eval::dataset::Record;
 use sightline::models::Pendulum;
-use sightline::nalgebra::{Cholesky, Vector1, Vector2};
+use sightline::nalgebra::{Cholesky, Vector2};
 
 /// A cloud of `count` particles drawn from the prior (never resampled: the arithmetic per
 /// particle does not depend on where the particles are).

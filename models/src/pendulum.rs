@@ -200,9 +200,7 @@ mod tests {
             Vector2::new(3.1, -1.0),
         ] {
             let (_, ad) = U2::jacobian(&Step(&p), &x);
-            let hand = p
-                .transition_jacobian(&x, &[0.3], 0.0, p.dt)
-                .unwrap();
+            let hand = p.transition_jacobian(&x, &[0.3], 0.0, p.dt).unwrap();
             assert!((hand - ad).abs().max() < 1e-14, "{hand} vs {ad}");
         }
     }

@@ -209,10 +209,7 @@ mod tests {
         let plant = TankChain::with_tanks(5);
         let x = DVector::from_vec(vec![12.0, 3.0, 8.0, 0.5, 20.0]);
         let (value, ad) = Dyn::jacobian(&Step(&plant, 3.0), &x);
-        assert_eq!(
-            value,
-            plant.transition(&x, &[3.0], 0.0, plant.dt)
-        );
+        assert_eq!(value, plant.transition(&x, &[3.0], 0.0, plant.dt));
         assert_eq!(ad.shape(), (5, 5));
         let delta = 1e-5;
         for j in 0..5 {

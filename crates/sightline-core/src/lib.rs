@@ -32,8 +32,8 @@ pub use gaussian::Gaussian;
 pub use integrate::{Integrator, rk4};
 pub use model::{Alloc, Declaration, Model, Variable, noise_through};
 pub use params::{Domain, Parameter, Parameters};
-pub use sightline_derive::Parameters;
 pub use real::{C, Real, c};
+pub use sightline_derive::Parameters;
 pub use sigma::{SigmaPoints, SigmaRule};
 pub use vanloan::van_loan;
 

@@ -17,8 +17,8 @@ pub use sightline_derive::Parameters;
 
 pub use nalgebra::{
     Const, DMatrix, DVector, Dyn, Matrix1, Matrix2, Matrix3, Matrix4, Matrix5, Matrix6, OMatrix,
-    OVector, SMatrix, SVector, U1, U2, U3, U4, U5, U6, Vector1, Vector2, Vector3, Vector4,
-    Vector5, Vector6,
+    OVector, SMatrix, SVector, U1, U2, U3, U4, U5, U6, Vector1, Vector2, Vector3, Vector4, Vector5,
+    Vector6,
 };
 
 /// The path `#[derive(Parameters)]` names this crate by (plants import the prelude).

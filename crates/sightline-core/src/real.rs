@@ -393,7 +393,10 @@ mod tests {
         for d in [1.0f64, -1.0, 10.0, -1e4] {
             let excess = d.smooth_max(0.0, w) - d.max(0.0);
             let expected = w * w / (4.0 * d.abs());
-            assert!((excess / expected - 1.0).abs() < 1e-5, "{d}: {excess} vs {expected}");
+            assert!(
+                (excess / expected - 1.0).abs() < 1e-5,
+                "{d}: {excess} vs {expected}"
+            );
         }
         // Slope between 0 and 1, finite at d = 0.
         for d in [-1e3, -1e-3, 0.0, 1e-3, 1e3] {

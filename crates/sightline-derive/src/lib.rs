@@ -131,15 +131,16 @@ fn parse_field(field: &syn::Field) -> syn::Result<Option<Field>> {
             "name" => name = Some(meta.value()?.parse::<LitStr>()?),
             "about" => about = Some(meta.value()?.parse::<LitStr>()?),
             _ => {
-                return Err(meta.error(
-                    "unknown key; expected default, unit, domain, name or about",
-                ));
+                return Err(
+                    meta.error("unknown key; expected default, unit, domain, name or about")
+                );
             }
         }
         Ok(())
     })?;
     let kind = kind_of(&field.ty)?;
-    let missing = |what: &str| syn::Error::new(attr.span(), format!("#[param] needs `{what} = ...`"));
+    let missing =
+        |what: &str| syn::Error::new(attr.span(), format!("#[param] needs `{what} = ...`"));
     let unit = unit.ok_or_else(|| missing("unit"))?;
     let domain = domain.ok_or_else(|| missing("domain"))?;
     if matches!(kind, Kind::Array(_)) && name.is_none() {
@@ -148,7 +149,9 @@ fn parse_field(field: &syn::Field) -> syn::Result<Option<Field>> {
             "an array parameter needs `name = \"...{}...\"` ({} is the 1-based index)",
         ));
     }
-    let about = about.map(|a| a.value()).unwrap_or_else(|| doc_text(&field.attrs));
+    let about = about
+        .map(|a| a.value())
+        .unwrap_or_else(|| doc_text(&field.attrs));
     if about.is_empty() {
         return Err(syn::Error::new(
             field.span(),
@@ -168,7 +171,11 @@ fn parse_field(field: &syn::Field) -> syn::Result<Option<Field>> {
 
 fn crate_path(input: &DeriveInput) -> syn::Result<syn::Path> {
     let mut path: syn::Path = syn::parse_quote!(__sightline_core);
-    for attr in input.attrs.iter().filter(|a| a.path().is_ident("parameters")) {
+    for attr in input
+        .attrs
+        .iter()
+        .filter(|a| a.path().is_ident("parameters"))
+    {
         attr.parse_nested_meta(|meta| {
             if meta.path.is_ident("crate") {
                 path = meta.value()?.parse::<LitStr>()?.parse()?;
@@ -260,7 +267,9 @@ fn expand(input: &DeriveInput) -> syn::Result<Tokens> {
             }
         }
     });
-    let arms = entries.iter().map(|(name, _, _, write, ..)| quote!(#name => #write,));
+    let arms = entries
+        .iter()
+        .map(|(name, _, _, write, ..)| quote!(#name => #write,));
     let names: Vec<&String> = entries.iter().map(|e| &e.0).collect();
     let valid = names
         .iter()

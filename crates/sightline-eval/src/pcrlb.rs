@@ -63,8 +63,7 @@ where
     let n = model.state_dim();
     let declaration = model.declare();
     let (name, inputs) = (declaration.name(), declaration.inputs().len());
-    let numeric =
-        |e: NumericError| Error::Run(format!("Cramér–Rao bound of '{name}': {e}"));
+    let numeric = |e: NumericError| Error::Run(format!("Cramér–Rao bound of '{name}': {e}"));
     let mut rows = Vec::with_capacity(truth.records.len());
     let mut previous: Option<(f64, OVector<f64, M::State>, &[f64])> = None;
     for (k, rec) in truth.records.iter().enumerate() {

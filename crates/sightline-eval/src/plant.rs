@@ -5,7 +5,9 @@
 //! (and a user's own binary) can hold shipped and user-written plants in one list.
 
 use nalgebra::{DefaultAllocator, Dim, OMatrix};
-use sightline_core::{Alloc, Declaration, Domain, Gaussian, Model, ParamError, Parameter, Variable};
+use sightline_core::{
+    Alloc, Declaration, Domain, Gaussian, Model, ParamError, Parameter, Variable,
+};
 use sightline_filters::{Filter, FilterSpec, SpecError};
 use sightline_models::ModelVisitor;
 
@@ -277,8 +279,17 @@ where
                 Ok(())
             }
             Err(ParamError::Unknown { .. }) => {
-                let mut valid: Vec<String> = self.parameters().into_iter().map(|p| p.name.into_owned()).collect();
-                valid.extend(self.declaration.inputs().iter().map(|v| format!("u.{}", v.name)));
+                let mut valid: Vec<String> = self
+                    .parameters()
+                    .into_iter()
+                    .map(|p| p.name.into_owned())
+                    .collect();
+                valid.extend(
+                    self.declaration
+                        .inputs()
+                        .iter()
+                        .map(|v| format!("u.{}", v.name)),
+                );
                 Err(ParamError::Unknown {
                     model: model_name,
                     name: name.to_string(),

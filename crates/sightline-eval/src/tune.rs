@@ -168,7 +168,11 @@ pub fn tune(
             return Err(Error::Usage(format!(
                 "tune: --param '{name}' is not a parameter of '{}'; its parameters are: {}",
                 plant.name(),
-                params.iter().map(|p| p.name.as_ref()).collect::<Vec<_>>().join(", ")
+                params
+                    .iter()
+                    .map(|p| p.name.as_ref())
+                    .collect::<Vec<_>>()
+                    .join(", ")
             )));
         };
         if matches!(p.domain, Domain::Integer(..)) {

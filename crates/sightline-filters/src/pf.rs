@@ -586,7 +586,7 @@ where
             .with_min_len(min_blocks_per_job())
             .for_each(|(b, (lw, meas, valid, slot))| {
                 let y = vector(md, y);
-                
+
                 let (mut max, mut valid_sum) = (f64::NEG_INFINITY, 0.0);
                 for k in 0..lw.len() {
                     let i = b * BLOCK + k;

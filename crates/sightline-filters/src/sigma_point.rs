@@ -237,8 +237,7 @@ where
         let b = &mut self.belief;
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
-            self.mapped
-                .set_column(i, &b.model.transition(&x, u, t, dt));
+            self.mapped.set_column(i, &b.model.transition(&x, u, t, dt));
         }
         let q = b.model.process_noise(&b.mean, u, t, dt);
         let mean = b.model.state_mean(&self.mapped, &self.wm);

@@ -250,8 +250,7 @@ where
         let numeric = |e: NumericError| b.tag.numeric(e);
         for i in 0..self.points.ncols() {
             let x: OVector<f64, M::State> = self.points.column(i).into_owned();
-            self.mapped
-                .set_column(i, &b.model.transition(&x, u, t, dt));
+            self.mapped.set_column(i, &b.model.transition(&x, u, t, dt));
         }
         let mean = b.model.state_mean(&self.mapped, &self.wm);
         ensure_finite(mean.iter(), "predicted mean").map_err(numeric)?;

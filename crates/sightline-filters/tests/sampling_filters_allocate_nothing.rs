@@ -10,9 +10,9 @@ use std::alloc::{GlobalAlloc, Layout, System};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 use sightline_core::nalgebra::{Matrix1, Matrix2, U1, U2, Vector1, Vector2};
+use sightline_core::prelude::*;
 use sightline_core::{Gaussian, Model, Real};
 use sightline_filters::{Filter, FilterSpec, build};
-use sightline_core::prelude::*;
 
 struct Counting;
 
@@ -61,13 +61,7 @@ impl Model for Oscillator {
             .measurement("s", "-")
             .input("f", "N", 0.0)
     }
-    fn transition<S: Real>(
-        &self,
-        x: &Vector2<S>,
-        u: &[f64],
-        _t: f64,
-        dt: f64,
-    ) -> Vector2<S> {
+    fn transition<S: Real>(&self, x: &Vector2<S>, u: &[f64], _t: f64, dt: f64) -> Vector2<S> {
         Vector2::new(x[0] + x[1] * dt, x[1] - (x[0] + x[1] * 0.2 - u[0]) * dt)
     }
     fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector1<S> {
