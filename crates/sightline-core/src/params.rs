@@ -120,7 +120,7 @@ pub trait Parameters {
 
 /// Checks `value` against the parameter list and returns the matching parameter, or an error
 /// naming the valid choices or the allowed range. `model` names the plant in the message (the
-/// command line fills it in when the derive leaves it empty).
+/// derive passes the struct's name; the command line replaces it with the declared name).
 pub fn validate<'a>(
     model: &str,
     params: &'a [Parameter],

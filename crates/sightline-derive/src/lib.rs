@@ -191,6 +191,8 @@ fn crate_path(input: &DeriveInput) -> syn::Result<syn::Path> {
 fn expand(input: &DeriveInput) -> syn::Result<Tokens> {
     let core = crate_path(input)?;
     let ty = &input.ident;
+    // Names the plant in errors until the command line, which knows its declared name, does.
+    let type_name = ty.to_string();
     let (impl_generics, ty_generics, where_clause) = input.generics.split_for_impl();
     let Data::Struct(data) = &input.data else {
         return Err(syn::Error::new(
@@ -283,17 +285,17 @@ fn expand(input: &DeriveInput) -> syn::Result<Tokens> {
     };
     let set_body = if entries.is_empty() {
         quote! {
-            #core::params::validate("", &[], name, value).map(|_| ())
+            #core::params::validate(#type_name, &[], name, value).map(|_| ())
         }
     } else {
         quote! {
             let params = #core::params::Parameters::parameters(self);
-            #core::params::validate("", &params, name, value)?;
+            #core::params::validate(#type_name, &params, name, value)?;
             match name {
                 #(#arms)*
                 _ => {
                     return ::std::result::Result::Err(#core::ParamError::Unknown {
-                        model: ::std::string::String::new(),
+                        model: #type_name.to_string(),
                         name: name.to_string(),
                         valid: #valid.to_string(),
                     })

@@ -170,6 +170,29 @@ where
     }
 }
 
+/// The plant's parameters as one line of the report: every model parameter with its unit, then
+/// the prior's `x0.`/`sd0.` of each state (of the first eight, for a long state list).
+pub fn parameters_text(plant: &dyn AnyPlant) -> String {
+    let params = plant.parameters();
+    let is_prior = |name: &str| name.starts_with("x0.") || name.starts_with("sd0.");
+    let shown_prior = plant.states().len() <= 8;
+    let items: Vec<String> = params
+        .iter()
+        .filter(|p| shown_prior || !is_prior(&p.name))
+        .map(|p| format!("{} = {} {}", p.name, p.value, p.unit))
+        .collect();
+    let mut text = format!(
+        "Plant parameters of '{}': {}",
+        plant.name(),
+        items.join(", ")
+    );
+    if !shown_prior {
+        text.push_str("; the prior of each state as declared unless set with x0./sd0.");
+    }
+    text.push_str(" (`sightline models` lists what each one means).");
+    text
+}
+
 /// Boxes a model as a plant handle — how a user's own plant joins the command line.
 pub fn plant<M: Model>(model: M) -> Box<dyn AnyPlant>
 where

@@ -135,7 +135,9 @@ impl Comparison {
             }
             None => report::bar_plots(&self.summary),
         };
-        report::render_html(title, &self.summary, &plots, &self.notes)
+        let mut notes = self.notes.clone();
+        notes.push(crate::plant::parameters_text(plant));
+        report::render_html(title, &self.summary, &plots, &notes)
     }
 }
 
