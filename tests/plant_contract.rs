@@ -11,58 +11,35 @@ use common_cli::{expect, json, s, sightline};
 fn unknown_set_names_are_refused_with_the_valid_list() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("p.csv");
-    let run = sightline(&[
-        "simulate",
+    // `simulate MODEL --set ITEM` must fail with exit 2, write nothing, and say `expected`.
+    let refused = |model: &str, item: &str, expected: &str| {
+        let run = sightline(&[
+            "simulate",
+            model,
+            "--steps",
+            "5",
+            "--seed",
+            "1",
+            "--set",
+            item,
+            "-o",
+            s(&out),
+        ]);
+        let err = String::from_utf8_lossy(&run.stderr);
+        assert_eq!(run.status.code(), Some(2), "{item}: {err}");
+        assert!(err.contains(expected), "{item}: {err}");
+        assert!(!out.exists(), "{item}: nothing is written on a usage error");
+    };
+    refused(
         "pendulum",
-        "--steps",
-        "5",
-        "--seed",
-        "1",
-        "--set",
         "lenght=2",
-        "-o",
-        s(&out),
-    ]);
-    assert_eq!(run.status.code(), Some(2));
-    let err = String::from_utf8_lossy(&run.stderr);
-    assert!(
-        err.contains(
-            "model 'pendulum' has no parameter 'lenght'; its parameters are: g, length, damping, \
-             dt, qc, r, x0.angle, x0.rate, sd0.angle, sd0.rate, u.torque"
-        ),
-        "{err}"
+        "model 'pendulum' has no parameter 'lenght'; its parameters are: g, length, damping, dt, \
+         qc, r, sd0.angle, sd0.rate, x0.angle, x0.rate, u.torque",
     );
-    assert!(!out.exists(), "nothing is written on a usage error");
     // A framework name of a state the plant does not have is just as unknown.
-    let run = sightline(&[
-        "simulate",
-        "cv",
-        "--steps",
-        "5",
-        "--seed",
-        "1",
-        "--set",
-        "sd0.angle=2",
-        "-o",
-        s(&out),
-    ]);
-    assert_eq!(run.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&run.stderr).contains("sd0.pos, sd0.vel"));
+    refused("cv", "sd0.angle=2", "sd0.pos, sd0.vel, x0.pos, x0.vel");
     // And a prior spread must be positive.
-    let run = sightline(&[
-        "simulate",
-        "cv",
-        "--steps",
-        "5",
-        "--seed",
-        "1",
-        "--set",
-        "sd0.vel=0",
-        "-o",
-        s(&out),
-    ]);
-    assert_eq!(run.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&run.stderr).contains("'sd0.vel' of model 'cv' must be > 0"));
+    refused("cv", "sd0.vel=0", "'sd0.vel' of model 'cv' must be > 0");
 }
 
 /// `tune --param x0.pos` recovers a known initial position. The data come from `cv` with the

@@ -5,9 +5,10 @@ The plant is the Van der Pol oscillator of examples/van_der_pol.rs,
 dx/dt = v, dv/dt = mu (1 - x^2) v - x + w, w white with spectral density q. Linearised at a
 state (x, v) its Jacobian is A = [[0, 1], [-2 mu x v - 1, mu (1 - x^2)]] (closed form), and the
 process noise over a step dt is Qd = int_0^dt expm(A s) Qc expm(A s)^T ds with Qc = diag(0, q),
-computed here by Van Loan's block exponential (C. F. Van Loan, IEEE TAC 23(3), 1978) with
-scipy.linalg.expm. General-purpose reference libraries only (`pip install numpy scipy`); the
-tests never run this script, its output is committed:
+computed by Van Loan's block exponential (C. F. Van Loan, IEEE TAC 23(3), 1978) with
+scipy.linalg.expm, as make_fixtures.py does for its own cases. General-purpose reference
+libraries only (`pip install numpy scipy`); the tests never run this script, its output is
+committed:
 
     python3 tests/reference/continuous_noise.py
 """
@@ -17,21 +18,9 @@ from pathlib import Path
 
 import numpy as np
 import scipy
-from scipy.linalg import expm
+from make_fixtures import van_loan_case
 
 OUT = Path(__file__).resolve().parent
-
-
-def van_loan(a, qc, dt):
-    n = a.shape[0]
-    c = np.zeros((2 * n, 2 * n))
-    c[:n, :n] = -a
-    c[:n, n:] = qc
-    c[n:, n:] = a.T
-    e = expm(c * dt)
-    phi = e[n:, n:].T
-    qd = phi @ e[:n, n:]
-    return 0.5 * (qd + qd.T)
 
 
 def main():
@@ -41,14 +30,14 @@ def main():
             for x, v in ((2.0, 0.0), (-1.2, 1.5), (0.3, -2.0), (0.0, 0.0), (1.0, 3.0)):
                 a = np.array([[0.0, 1.0], [-2.0 * mu * x * v - 1.0, mu * (1.0 - x * x)]])
                 qc = np.array([[0.0, 0.0], [0.0, q]])
-                qd = van_loan(a, qc, dt)
+                qd = van_loan_case("van der pol", a, qc, dt)["Qd"]
                 cases.append(
                     {
                         "mu": mu,
                         "q": q,
                         "dt": dt,
                         "state": [x, v],
-                        "Qd": [[float(e) for e in row] for row in qd],
+                        "Qd": qd,
                     }
                 )
     payload = {

@@ -32,8 +32,8 @@ pub trait AnyPlant: Send + Sync {
     fn is_linear(&self) -> bool;
     /// Nominal sample time (s).
     fn dt(&self) -> f64;
-    /// Parameters with current values: the model's own, then the prior's `x0.<state>` and
-    /// `sd0.<state>` of every state.
+    /// Parameters with current values: the model's own, then the prior's `sd0.<state>` and
+    /// `x0.<state>` of every state.
     fn parameters(&self) -> Vec<Parameter>;
     /// Applies `--set NAME=VALUE`: a model parameter, the prior mean (`x0.<state>`) or standard
     /// deviation (`sd0.<state>`) of a state, or a constant input (`u.<input>`). Unknown names get
@@ -142,31 +142,32 @@ where
             .collect()
     }
 
-    /// The framework's parameters of the prior: `x0.<state>` and `sd0.<state>` for every state.
+    /// The framework's parameters of the prior: `sd0.<state>` and `x0.<state>` for every state
+    /// (in that order, as the shipped plants listed them before the framework provided them).
     fn prior_parameters(&self) -> Vec<Parameter> {
         let prior = self.prior_gaussian();
         let states = self.declaration.states();
-        let mut params = Vec::with_capacity(2 * states.len());
-        for (i, v) in states.iter().enumerate() {
-            params.push(Parameter {
-                name: format!("x0.{}", v.name).into(),
-                value: prior.mean.get(i).copied().unwrap_or(0.0),
-                unit: v.unit.clone().into(),
-                about: format!("prior mean of {}", v.name).into(),
-                domain: Domain::Finite,
-            });
-        }
-        for (i, v) in states.iter().enumerate() {
-            let variance = prior.cov.get((i, i)).copied().unwrap_or(0.0);
-            params.push(Parameter {
-                name: format!("sd0.{}", v.name).into(),
-                value: variance.max(0.0).sqrt(),
-                unit: v.unit.clone().into(),
-                about: format!("prior standard deviation of {}", v.name).into(),
-                domain: Domain::Positive,
-            });
-        }
-        params
+        let spreads = states.iter().enumerate().map(|(i, v)| Parameter {
+            name: format!("sd0.{}", v.name).into(),
+            value: prior
+                .cov
+                .get((i, i))
+                .copied()
+                .unwrap_or(0.0)
+                .max(0.0)
+                .sqrt(),
+            unit: v.unit.clone().into(),
+            about: format!("prior standard deviation of {}", v.name).into(),
+            domain: Domain::Positive,
+        });
+        let means = states.iter().enumerate().map(|(i, v)| Parameter {
+            name: format!("x0.{}", v.name).into(),
+            value: prior.mean.get(i).copied().unwrap_or(0.0),
+            unit: v.unit.clone().into(),
+            about: format!("prior mean of {}", v.name).into(),
+            domain: Domain::Finite,
+        });
+        spreads.chain(means).collect()
     }
 }
 
