@@ -19,10 +19,17 @@
 
 use sightline_core::prelude::*;
 
-/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are: the
-/// smooth maximum of `h` and 0 with width ε ([`Real::smooth_max`]).
+/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are: the same
+/// function as `h.smooth_max(0.0, eps)` ([`Real::smooth_max`]), written for the zero floor
+/// directly, which saves two operations per call on the hot path of the tank plants.
 pub fn smooth_level<S: Real>(h: S, eps: f64) -> S {
-    h.smooth_max(0.0, eps)
+    let s = (h * h + eps * eps).sqrt();
+    if h.value() >= 0.0 {
+        (h + s) * 0.5
+    } else {
+        // Same function, written without the cancellation of h + s for h < 0.
+        (s - h).recip() * (eps * eps * 0.5)
+    }
 }
 
 /// Outflow a·√(2g·ĥ(h)) of an outlet of area `a` at level `h` (cm³/s for cm, cm², cm/s²).
@@ -66,6 +73,18 @@ mod tests {
             if h < -1.0 {
                 assert!((q / limit - 1.0).abs() < 1e-6, "h = {h}: {q} vs {limit}");
             }
+        }
+    }
+
+    #[test]
+    fn smooth_level_is_the_smooth_maximum_with_zero() {
+        // The same function as Real::smooth_max at a zero floor, bit for bit.
+        for h in [-1e6f64, -5.0, -1e-3, -1e-9, 0.0, 1e-9, 1e-3, 0.5, 12.7, 1e4] {
+            assert_eq!(
+                smooth_level(h, 1e-3).to_bits(),
+                h.smooth_max(0.0, 1e-3).to_bits(),
+                "{h}"
+            );
         }
     }
 

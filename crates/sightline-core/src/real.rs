@@ -82,16 +82,19 @@ pub trait Real:
     fn le(self, other: impl Into<Self>) -> Self::Mask;
 
     /// The larger of the two by value, with its derivatives (the other one if either is NaN).
+    #[inline]
     fn max(self, other: impl Into<Self>) -> Self {
         let other = other.into();
         Self::select(self.ge(other), self, other)
     }
     /// The smaller of the two by value, with its derivatives (the other one if either is NaN).
+    #[inline]
     fn min(self, other: impl Into<Self>) -> Self {
         let other = other.into();
         Self::select(self.le(other), self, other)
     }
     /// `self` limited to `[lo, hi]` by value.
+    #[inline]
     fn clamp(self, lo: impl Into<Self>, hi: impl Into<Self>) -> Self {
         self.max(lo).min(hi)
     }
@@ -104,6 +107,7 @@ pub trait Real:
     /// infinite. For `d < 0` the equivalent cancellation-free form
     /// `width²/(2(√(d² + width²) − d))` is used, so the result stays above `other` for any
     /// finite `d`.
+    #[inline]
     fn smooth_max(self, other: impl Into<Self>, width: f64) -> Self {
         let other = other.into();
         let d = self - other;
@@ -172,6 +176,7 @@ pub trait Real:
     /// artanh x.
     fn atanh(self) -> Self;
     /// √(x² + y²).
+    #[inline]
     fn hypot(self, other: Self) -> Self {
         (self * self + other * other).sqrt()
     }
@@ -183,25 +188,32 @@ where
 {
     type Mask = bool;
 
+    #[inline]
     fn value(self) -> f64 {
         num_dual::DualStruct::re(&self)
     }
+    #[inline]
     fn select(mask: bool, if_true: Self, if_false: Self) -> Self {
         if mask { if_true } else { if_false }
     }
+    #[inline]
     fn gt(self, other: impl Into<Self>) -> bool {
         self.value() > other.into().value()
     }
+    #[inline]
     fn ge(self, other: impl Into<Self>) -> bool {
         self.value() >= other.into().value()
     }
+    #[inline]
     fn lt(self, other: impl Into<Self>) -> bool {
         self.value() < other.into().value()
     }
+    #[inline]
     fn le(self, other: impl Into<Self>) -> bool {
         self.value() <= other.into().value()
     }
     /// The same function as the provided method, evaluating only the branch it selects.
+    #[inline]
     fn smooth_max(self, other: impl Into<Self>, width: f64) -> Self {
         let other = other.into();
         let d = self - other;
@@ -212,87 +224,115 @@ where
             other + (s - d).recip() * (width * width * 0.5)
         }
     }
+    #[inline]
     fn abs(self) -> Self {
         num_traits::Signed::abs(&self)
     }
+    #[inline]
     fn recip(self) -> Self {
         DualNum::recip(&self)
     }
+    #[inline]
     fn sqrt(self) -> Self {
         DualNum::sqrt(&self)
     }
+    #[inline]
     fn cbrt(self) -> Self {
         DualNum::cbrt(&self)
     }
+    #[inline]
     fn powi(self, n: i32) -> Self {
         DualNum::powi(&self, n)
     }
+    #[inline]
     fn powf(self, p: f64) -> Self {
         DualNum::powf(&self, p)
     }
+    #[inline]
     fn exp(self) -> Self {
         DualNum::exp(&self)
     }
+    #[inline]
     fn exp2(self) -> Self {
         DualNum::exp2(&self)
     }
+    #[inline]
     fn exp_m1(self) -> Self {
         DualNum::exp_m1(&self)
     }
+    #[inline]
     fn ln(self) -> Self {
         DualNum::ln(&self)
     }
+    #[inline]
     fn ln_1p(self) -> Self {
         DualNum::ln_1p(&self)
     }
+    #[inline]
     fn log10(self) -> Self {
         DualNum::log10(&self)
     }
+    #[inline]
     fn log2(self) -> Self {
         DualNum::log2(&self)
     }
+    #[inline]
     fn log(self, base: f64) -> Self {
         DualNum::log(&self, base)
     }
+    #[inline]
     fn sin(self) -> Self {
         DualNum::sin(&self)
     }
+    #[inline]
     fn cos(self) -> Self {
         DualNum::cos(&self)
     }
+    #[inline]
     fn sin_cos(self) -> (Self, Self) {
         DualNum::sin_cos(&self)
     }
+    #[inline]
     fn tan(self) -> Self {
         DualNum::tan(&self)
     }
+    #[inline]
     fn asin(self) -> Self {
         DualNum::asin(&self)
     }
+    #[inline]
     fn acos(self) -> Self {
         DualNum::acos(&self)
     }
+    #[inline]
     fn atan(self) -> Self {
         DualNum::atan(&self)
     }
+    #[inline]
     fn atan2(self, other: Self) -> Self {
         DualNum::atan2(&self, other)
     }
+    #[inline]
     fn sinh(self) -> Self {
         DualNum::sinh(&self)
     }
+    #[inline]
     fn cosh(self) -> Self {
         DualNum::cosh(&self)
     }
+    #[inline]
     fn tanh(self) -> Self {
         DualNum::tanh(&self)
     }
+    #[inline]
     fn asinh(self) -> Self {
         DualNum::asinh(&self)
     }
+    #[inline]
     fn acosh(self) -> Self {
         DualNum::acosh(&self)
     }
+    #[inline]
     fn atanh(self) -> Self {
         DualNum::atanh(&self)
     }
