@@ -76,14 +76,16 @@ impl Model for TwoSensorPendulum {
             .measurement("y", "m")
             .input("torque", "rad/s^2", 0.0)
     }
-    fn transition<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64, dt: f64) -> Vector2<S> {
-        self.0.transition(x, u, t, dt)
+    // Continuous time through the library: the integrated transition and the derived Q (AD
+    // linearisation, then Van Loan) must not allocate either.
+    fn derivative<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64) -> Vector2<S> {
+        self.0.derivative(x, u, t)
     }
     fn measure<S: Real>(&self, x: &Vector2<S>, _u: &[f64], _t: f64) -> Vector2<S> {
         Vector2::new(x[0].sin() * self.0.length, -x[0].cos() * self.0.length)
     }
-    fn process_noise(&self, x: &Vector2<f64>, u: &[f64], t: f64, dt: f64) -> Matrix2<f64> {
-        self.0.process_noise(x, u, t, dt)
+    fn noise_density(&self, x: &Vector2<f64>, u: &[f64], t: f64) -> Matrix2<f64> {
+        self.0.noise_density(x, u, t)
     }
     fn measurement_noise(&self, _t: f64) -> Matrix2<f64> {
         Matrix2::new(4e-4, 1e-4, 1e-4, 9e-4)
