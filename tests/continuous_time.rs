@@ -44,6 +44,31 @@ fn derived_process_noise_matches_scipy_for_a_nonlinear_plant() {
     eprintln!("worst relative error of the derived Q: {worst:.1e}");
 }
 
+/// The declaration, sensor and hand-written transition Jacobian of the wrapped pendulum, for
+/// the two wrappers below, which differ only in how they write the dynamics.
+macro_rules! same_sensor_as_the_pendulum {
+    () => {
+        fn declare(&self) -> Declaration {
+            self.0.declare()
+        }
+        fn measure<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64) -> Vector1<S> {
+            self.0.measure(x, u, t)
+        }
+        fn measurement_noise(&self, t: f64) -> Matrix1<f64> {
+            self.0.measurement_noise(t)
+        }
+        fn transition_jacobian(
+            &self,
+            x: &Vector2<f64>,
+            u: &[f64],
+            t: f64,
+            dt: f64,
+        ) -> Option<Matrix2<f64>> {
+            self.0.transition_jacobian(x, u, t, dt)
+        }
+    };
+}
+
 /// The pendulum as it was written before the continuous-time path: its own RK4 step with the
 /// torque added to the acceleration, and Van Loan on the hand-written linearisation.
 #[derive(Clone, Parameters)]
@@ -52,9 +77,6 @@ struct HandWritten(Pendulum);
 impl Model for HandWritten {
     type State = U2;
     type Meas = U1;
-    fn declare(&self) -> Declaration {
-        self.0.declare()
-    }
     fn transition<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64, dt: f64) -> Vector2<S> {
         let p = &self.0;
         let torque = u[0];
@@ -74,21 +96,7 @@ impl Model for HandWritten {
         let qc = Matrix2::new(0.0, 0.0, 0.0, self.0.qc);
         van_loan(&self.0.derivative_jacobian(x), &qc, dt).1
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64) -> Vector1<S> {
-        self.0.measure(x, u, t)
-    }
-    fn measurement_noise(&self, t: f64) -> Matrix1<f64> {
-        self.0.measurement_noise(t)
-    }
-    fn transition_jacobian(
-        &self,
-        x: &Vector2<f64>,
-        u: &[f64],
-        t: f64,
-        dt: f64,
-    ) -> Option<Matrix2<f64>> {
-        self.0.transition_jacobian(x, u, t, dt)
-    }
+    same_sensor_as_the_pendulum!();
 }
 
 /// The pendulum through the library's continuous-time path only: its right-hand side and
@@ -100,30 +108,13 @@ struct Derived(Pendulum);
 impl Model for Derived {
     type State = U2;
     type Meas = U1;
-    fn declare(&self) -> Declaration {
-        self.0.declare()
-    }
     fn derivative<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64) -> Vector2<S> {
         self.0.derivative(x, u, t)
     }
     fn noise_density(&self, x: &Vector2<f64>, u: &[f64], t: f64) -> Matrix2<f64> {
         self.0.noise_density(x, u, t)
     }
-    fn measure<S: Real>(&self, x: &Vector2<S>, u: &[f64], t: f64) -> Vector1<S> {
-        self.0.measure(x, u, t)
-    }
-    fn measurement_noise(&self, t: f64) -> Matrix1<f64> {
-        self.0.measurement_noise(t)
-    }
-    fn transition_jacobian(
-        &self,
-        x: &Vector2<f64>,
-        u: &[f64],
-        t: f64,
-        dt: f64,
-    ) -> Option<Matrix2<f64>> {
-        self.0.transition_jacobian(x, u, t, dt)
-    }
+    same_sensor_as_the_pendulum!();
 }
 
 fn bits(values: &[f64]) -> Vec<u64> {

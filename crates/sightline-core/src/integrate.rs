@@ -117,6 +117,28 @@ impl Integrator {
     }
 }
 
+/// `substeps` equal steps of `one(t, h, x)` (the one-step map of a method) over `dt` from `t0`.
+fn fixed_steps<S, N>(
+    x: &OVector<S, N>,
+    t0: f64,
+    dt: f64,
+    substeps: usize,
+    one: impl Fn(f64, f64, &OVector<S, N>) -> OVector<S, N>,
+) -> OVector<S, N>
+where
+    S: Real,
+    N: Dim,
+    DefaultAllocator: Allocator<N>,
+{
+    let steps = substeps.max(1);
+    let h = dt / steps as f64;
+    let mut x = x.clone();
+    for i in 0..steps {
+        x = one(t0 + i as f64 * h, h, &x);
+    }
+    x
+}
+
 /// Heun's method over `dt` in `substeps` steps (see [`Integrator::Heun`]).
 fn heun<S, N, F>(f: F, x: &OVector<S, N>, t0: f64, dt: f64, substeps: usize) -> OVector<S, N>
 where
@@ -125,16 +147,11 @@ where
     F: Fn(f64, &OVector<S, N>) -> OVector<S, N>,
     DefaultAllocator: Allocator<N>,
 {
-    let steps = substeps.max(1);
-    let h = dt / steps as f64;
-    let mut x = x.clone();
-    for i in 0..steps {
-        let t = t0 + i as f64 * h;
-        let k1 = f(t, &x);
-        let k2 = f(t + h, &(&x + &k1 * S::from(h)));
-        x += (k1 + k2) * S::from(h / 2.0);
-    }
-    x
+    fixed_steps(x, t0, dt, substeps, |t, h, x| {
+        let k1 = f(t, x);
+        let k2 = f(t + h, &(x + &k1 * S::from(h)));
+        x + (k1 + k2) * S::from(h / 2.0)
+    })
 }
 
 /// Forward Euler over `dt` in `substeps` steps (see [`Integrator::Euler`]).
@@ -145,12 +162,5 @@ where
     F: Fn(f64, &OVector<S, N>) -> OVector<S, N>,
     DefaultAllocator: Allocator<N>,
 {
-    let steps = substeps.max(1);
-    let h = dt / steps as f64;
-    let mut x = x.clone();
-    for i in 0..steps {
-        let k = f(t0 + i as f64 * h, &x);
-        x += k * S::from(h);
-    }
-    x
+    fixed_steps(x, t0, dt, substeps, |t, h, x| x + f(t, x) * S::from(h))
 }
