@@ -29,6 +29,7 @@ fuzz_target!(|data: &[u8]| {
         for nonfinite_as_missing in [false, true] {
             let options = ReadOptions {
                 nonfinite_as_missing,
+                ..ReadOptions::default()
             };
             let outcome = DatasetReader::from_reader(
                 Path::new("fuzz.csv"),

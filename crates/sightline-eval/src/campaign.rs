@@ -30,6 +30,7 @@ use crate::exact_sum::ExactSum;
 use crate::metrics::StepMetrics;
 use crate::plant::AnyPlant;
 use crate::runner::{self, Observer, RunConfig};
+use crate::settings::Settings;
 use crate::simulate::SimOptions;
 use crate::summary::{self, DiagnosticsSummary, FilterSummary, StateMap, Status, Summary};
 use crate::verdict;
@@ -51,7 +52,7 @@ pub fn run_seed(seed: u64, i: u64) -> u64 {
 }
 
 /// What a campaign is: everything that must agree between shards.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct CampaignSpec {
     /// Model name.
     pub model: String,
@@ -65,6 +66,28 @@ pub struct CampaignSpec {
     pub seed: u64,
     /// Filter labels, in order.
     pub filters: Vec<String>,
+    /// `--every K`: each run keeps a measurement only every K rows (1 in files written before
+    /// the option existed).
+    #[serde(default = "every_row")]
+    pub every: usize,
+    /// `--dropout P`: each simulated measurement component is dropped with probability P.
+    #[serde(default)]
+    pub dropout: f64,
+}
+
+fn every_row() -> usize {
+    1
+}
+
+impl CampaignSpec {
+    /// How each run's dataset is simulated.
+    pub fn sim_options(&self) -> SimOptions {
+        SimOptions {
+            noise_free: false,
+            every: self.every,
+            dropout: self.dropout,
+        }
+    }
 }
 
 /// `--shard K/N`: shard K (1-based) of N.
@@ -234,6 +257,10 @@ pub struct Totals {
     /// Exact sums of the posterior Cramér–Rao bound's information terms over the runs
     /// (`None` for plants with more than [`crate::pcrlb::MAX_STATES`] states).
     pub pcrlb: Option<PcrlbTotals>,
+    /// How the campaign was run, for the summary's `settings` (absent in files written before
+    /// it existed).
+    #[serde(default)]
+    pub settings: Option<Settings>,
 }
 
 /// The PCRLB's share of the totals: the information terms of every run, summed exactly so that
@@ -370,7 +397,7 @@ fn one_run(
     let seed = run_seed(campaign.seed, i);
     let steps = campaign.steps as usize;
     let data = plant
-        .simulate(steps, seed, &SimOptions::default())
+        .simulate(steps, seed, &campaign.sim_options())
         .map_err(|e| match e {
             // A Ctrl-C seen while simulating stays an interrupt (exit 130), not a failed run.
             Error::Interrupted(_) => e,
@@ -484,6 +511,15 @@ pub fn empty_totals(
     if campaign.runs == 0 {
         return Err(Error::Usage("--runs must be at least 1".into()));
     }
+    if campaign.every == 0 {
+        return Err(Error::Usage("--every must be at least 1".into()));
+    }
+    if !(0.0..=1.0).contains(&campaign.dropout) {
+        return Err(Error::Usage(format!(
+            "--dropout must be a probability in [0, 1], got {}",
+            campaign.dropout
+        )));
+    }
     let probe = runner::build_filters(plant, specs, campaign.seed)?;
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
     let steps = campaign.steps as usize;
@@ -506,6 +542,7 @@ pub fn empty_totals(
                 error: None,
             }
         }),
+        settings: None,
     })
 }
 
@@ -677,6 +714,10 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
         total.covered.extend(part.covered.iter().copied());
         join_ranges(&mut total.covered);
     }
+    // The merged result is the whole campaign's: no shard.
+    if let Some(s) = total.settings.as_mut() {
+        s.shard = None;
+    }
     Ok(total)
 }
 
@@ -842,6 +883,8 @@ pub fn summarise(totals: &Totals) -> Summary {
         command: "montecarlo".into(),
         model: totals.campaign.model.clone(),
         steps: totals.campaign.steps,
+        settings: totals.settings.clone(),
+        ignored_columns: Vec::new(),
         truth: true,
         criteria: summary::criteria(true, true),
         filters,
@@ -872,12 +915,15 @@ mod tests {
                 steps: 1,
                 seed: 0,
                 filters: Vec::new(),
+                every: 1,
+                dropout: 0.0,
             },
             states: Vec::new(),
             measurements: 0,
             covered,
             filters: Vec::new(),
             pcrlb: None,
+            settings: None,
         };
         assert_eq!(uncovered(&totals, 0..12), vec![3..5, 6..8, 10..12]);
         assert_eq!(uncovered(&totals, 2..9), vec![3..5, 6..8]);

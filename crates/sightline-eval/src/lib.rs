@@ -20,6 +20,7 @@ pub mod pcrlb;
 pub mod plant;
 pub mod report;
 pub mod runner;
+pub mod settings;
 pub mod simulate;
 pub mod summary;
 pub mod tune;

@@ -56,6 +56,9 @@ pub struct Tuned {
     pub iterations: u64,
     /// Every evaluation of the objective, in order.
     pub trace: Vec<TraceEntry>,
+    /// How the result was made (set by the command; absent in files written before it existed).
+    #[serde(default)]
+    pub settings: Option<crate::settings::Settings>,
 }
 
 /// Runs `filter` over `data` and returns the summed log-likelihood.
@@ -247,6 +250,7 @@ pub fn tune(
         optimiser: "Nelder–Mead simplex (argmin)".into(),
         iterations,
         trace,
+        settings: None,
     })
 }
 

@@ -33,6 +33,7 @@ fn read_checked(
         &schema(fallback),
         ReadOptions {
             nonfinite_as_missing,
+            ..ReadOptions::default()
         },
     )
     .and_then(|mut reader| {

@@ -16,6 +16,7 @@ use crate::output::OutputDir;
 use crate::plant::AnyPlant;
 use crate::report::{self, Area, Line, LinePlot, Plot, colour};
 use crate::runner;
+use crate::settings::Settings;
 use crate::summary::Summary;
 
 /// Arguments of `montecarlo`.
@@ -33,6 +34,10 @@ pub struct CampaignArgs {
     pub seed: u64,
     /// Shard K/N.
     pub shard: Option<String>,
+    /// Keep a measurement every K rows.
+    pub every: usize,
+    /// Drop each measurement component with this probability.
+    pub dropout: f64,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -62,6 +67,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        clock: None,
         caption: "Average over the runs of each step's NEES; a consistent filter keeps about 95 % \
                   of the steps inside the band (Bar-Shalom et al. 2001, §5.4)."
             .into(),
@@ -84,6 +90,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        clock: None,
         caption: "Average over the runs of each step's NIS against the band of an average of \
                   M χ²(m) values."
             .into(),
@@ -195,7 +202,10 @@ pub fn finish(summary: &Summary, dir: &Path) -> Result<()> {
 /// Runs `montecarlo`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
     let plant = configure(plants, &args.plant)?;
-    let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
+    let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
+    if let Some(note) = &skipped {
+        eprintln!("note: {note}");
+    }
     let shard = args.shard.as_deref().map(Shard::parse).transpose()?;
     let spec = CampaignSpec {
         model: plant.name().to_string(),
@@ -204,12 +214,24 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
         steps: args.steps as u64,
         seed: args.seed,
         filters: specs.iter().map(|s| s.label.clone()).collect(),
+        every: args.every,
+        dropout: args.dropout,
+    };
+    let settings = Settings {
+        filters: spec.filters.clone(),
+        runs: Some(spec.runs),
+        steps: Some(spec.steps),
+        every: Some(spec.every),
+        dropout: Some(spec.dropout),
+        shard: shard.map(|s| format!("{}/{}", s.index, s.count)),
+        ..Settings::new("montecarlo", plant.as_ref(), &args.plant.set, args.seed)
     };
     let range = match shard {
         Some(s) => s.range(spec.runs),
         None => 0..spec.runs,
     };
-    let fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
+    let mut fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
+    fresh.settings = Some(settings);
     let mut checkpoint = Checkpoint::beside(&args.output);
     let mut totals = match checkpoint.load(&fresh, &range)? {
         Some(saved) => {
