@@ -708,6 +708,15 @@ fn clock_times_reach_the_report() {
     // 300 rows of 10 ms from 11:00:00+01:00: the axis reads in clock time at that offset.
     assert!(report.contains("clock time, UTC+01"), "axis label");
     assert!(report.contains("11:00:01"), "a clock tick");
+    // Date-time data reruns from its settings too.
+    let again = dir.join("again");
+    let mut args = settings_of(&out.join("summary.json")).rerun_args(Some(s(&file)));
+    args.extend(["-o".to_string(), s(&again).to_string()]);
+    run_args(&args);
+    assert_eq!(
+        std::fs::read(out.join("estimates.csv")).unwrap(),
+        std::fs::read(again.join("estimates.csv")).unwrap()
+    );
 }
 
 #[test]

@@ -939,9 +939,10 @@ impl DatasetReader {
         let fields: Vec<&str> = header.iter().collect();
         let columns = ColumnMap::from_header(path, line, &fields, schema, &options)?;
         let layout = columns.layout(schema);
+        // `--time-unit s` (what settings record by default) says nothing a date-time contradicts.
         let time = TimeParser::new(
             options.time_unit.unwrap_or_default(),
-            options.time_unit.is_some(),
+            options.time_unit.is_some_and(|u| u != TimeUnit::Seconds),
             zone,
         );
         Ok(DatasetReader {
