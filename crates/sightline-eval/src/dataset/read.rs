@@ -189,8 +189,14 @@ pub enum InputSource {
 /// `text` in single quotes for a message: control characters escaped (so junk never reaches
 /// the terminal raw) and long text cut to its first 40 characters.
 pub fn quoted(text: &str) -> String {
+    format!("'{}'", escaped(text))
+}
+
+/// `text` for a message without quotes (e.g. inside a suggested flag): control characters
+/// escaped and long text cut to its first 40 characters, as in [`quoted`].
+pub fn escaped(text: &str) -> String {
     const SHOWN: usize = 40;
-    let mut out = String::from("'");
+    let mut out = String::new();
     for (i, c) in text.chars().enumerate() {
         if i == SHOWN {
             out.push('…');
@@ -202,7 +208,6 @@ pub fn quoted(text: &str) -> String {
             out.push(c);
         }
     }
-    out.push('\'');
     out
 }
 
@@ -314,9 +319,10 @@ impl Header<'_> {
     /// The message for column `field`, whose name the model lacks; `missing` lists the
     /// quantities of its kind that no column gives.
     fn unknown(&self, field: usize, missing: &[String], strict: bool) -> String {
-        let name = &self.names[field];
-        let shown = quoted(name);
-        let Some((kind, _)) = Kind::of(name) else {
+        let raw = &self.names[field];
+        let shown = quoted(raw);
+        let name = escaped(raw);
+        let Some((kind, _)) = Kind::of(raw) else {
             return format!(
                 "unexpected column {shown}; {}; --strict-columns refuses columns the model does \
                  not read: read it with --map {name}=y.<measurement> (or u., x.), or drop \
@@ -386,7 +392,7 @@ impl ColumnMap {
         // --map: every source is a header column and every target one of the model's names.
         let mut targets: Vec<Option<&str>> = vec![None; names.len()];
         for (source, target) in &options.map {
-            let item = format!("--map {source}={target}");
+            let item = format!("--map {}={}", escaped(source), escaped(target));
             let Some(field) = names.iter().position(|n| n == source) else {
                 return Err(h.at(
                     names.len() + 1,
@@ -550,8 +556,9 @@ impl ColumnMap {
                     .to_string()
             } else {
                 format!(
-                    "the header has no time column {} (--time {time}); its columns: {}",
+                    "the header has no time column {} (--time {}); its columns: {}",
                     quoted(time),
+                    escaped(time),
                     h.columns()
                 )
             };
@@ -560,7 +567,7 @@ impl ColumnMap {
                 (Some(&f), _) => format!(
                     "; if {} holds the time, add --time {}",
                     quoted(&names[f]),
-                    names[f]
+                    escaped(&names[f])
                 ),
                 (None, Some(_)) => {
                     "; if the unnamed first column holds the time, add --time ''".to_string()
@@ -595,8 +602,9 @@ impl ColumnMap {
             match other_columns().as_slice() {
                 [] => String::new(),
                 [one] => format!(
-                    " (if column {} holds it, add --map {one}={target})",
-                    quoted(one)
+                    " (if column {} holds it, add --map {}={target})",
+                    quoted(one),
+                    escaped(one)
                 ),
                 _ => format!(" (if one of the other columns holds it, add --map COLUMN={target})"),
             }
@@ -739,12 +747,10 @@ pub struct StrictlyIncreasingTime {
 impl RowCheck for StrictlyIncreasingTime {
     fn check(&mut self, row: &Row<'_>) -> Result<(), Problem> {
         let t = row.record.t;
-        let name = row
-            .columns
-            .names
-            .get(row.columns.t)
-            .map_or("t", String::as_str);
-        let name = if name.is_empty() { "t" } else { name };
+        let name = match row.columns.names.get(row.columns.t).map(String::as_str) {
+            None | Some("") => "t".to_string(),
+            Some(name) => escaped(name),
+        };
         if let Some((prev, line)) = self.previous {
             if t <= prev {
                 return Err(Problem {
@@ -1158,7 +1164,7 @@ impl DatasetReader {
         let number = |field: usize, what: &str| -> Result<f64> {
             let text = cell(field);
             let shown = quoted(text);
-            let name = &columns.names[field];
+            let name = escaped(&columns.names[field]);
             match text.parse::<f64>() {
                 Ok(v) if v.is_finite() => Ok(v),
                 Ok(_) => Err(at(
@@ -1187,12 +1193,12 @@ impl DatasetReader {
         };
         let time_cell = cell(columns.t);
         let time_name = match columns.names[columns.t].as_str() {
-            "" => "t",
-            name => name,
+            "" => "t".to_string(),
+            name => escaped(name),
         };
         record.t = self
             .time
-            .elapsed(time_name, time_cell)
+            .elapsed(&time_name, time_cell)
             .map_err(|m| at(columns.t + 1, format!("{m}{}", spans_lines(time_cell))))?;
         time_text.clear();
         time_text.push_str(time_cell);
@@ -1219,7 +1225,7 @@ impl DatasetReader {
                             format!(
                                 "measurement '{}' is {shown}; expected a finite number or an \
                                  empty cell for a missing value (or pass --nonfinite-as-missing)",
-                                columns.names[field]
+                                escaped(&columns.names[field])
                             ),
                         ));
                     }
@@ -1229,7 +1235,7 @@ impl DatasetReader {
                             format!(
                                 "measurement '{}' is {shown}; expected a number or an empty \
                                  cell{}{}",
-                                columns.names[field],
+                                escaped(&columns.names[field]),
                                 spans_lines(text),
                                 if text.is_empty()
                                     || text.chars().count() > 12
