@@ -65,6 +65,22 @@ fn write_rows(path: &Path, header: &[String], rows: &[Vec<String>], comment: boo
     std::fs::write(path, out).unwrap();
 }
 
+/// The rows with the cell of `column` replaced by `time(k)` on row k.
+fn retimed(
+    rows: &[Vec<String>],
+    column: usize,
+    time: impl Fn(usize) -> String,
+) -> Vec<Vec<String>> {
+    rows.iter()
+        .enumerate()
+        .map(|(k, r)| {
+            let mut r = r.clone();
+            r[column] = time(k);
+            r
+        })
+        .collect()
+}
+
 /// Time of row k (10 ms apart) as a date-time from 2026-03-01T10:00:00Z, written with the
 /// UTC offset `hours` (RFC 3339 §4.2: the local time is UTC + offset).
 fn date_time(k: usize, hours: i64) -> String {
@@ -170,16 +186,7 @@ fn one_dataset_in_every_shape_gives_the_plain_files_estimates() {
     let reference = estimates(dir, "plain", s(&plain_path), &[], None);
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
     let (t, y) = (col("t"), col("y.position"));
-    let with_time = |f: &dyn Fn(usize) -> String| -> Vec<Vec<String>> {
-        rows.iter()
-            .enumerate()
-            .map(|(k, r)| {
-                let mut r = r.clone();
-                r[t] = f(k);
-                r
-            })
-            .collect()
-    };
+    let with_time = |f: &dyn Fn(usize) -> String| retimed(&rows, t, f);
     struct Shape {
         name: &'static str,
         header: Vec<String>,
@@ -349,15 +356,7 @@ fn a_millisecond_log_is_refused_as_seconds_and_read_with_its_unit() {
     let dir = tmp.path();
     let (plain_path, header, rows) = plain(dir);
     let t = header.iter().position(|h| h == "t").unwrap();
-    let ms: Vec<Vec<String>> = rows
-        .iter()
-        .enumerate()
-        .map(|(k, r)| {
-            let mut r = r.clone();
-            r[t] = (10 * k).to_string();
-            r
-        })
-        .collect();
+    let ms = retimed(&rows, t, |k| (10 * k).to_string());
     let file = dir.join("ms.csv");
     write_rows(&file, &header, &ms, false);
     let out = dir.join("refused");
@@ -688,15 +687,7 @@ fn clock_times_reach_the_report() {
     let dir = tmp.path();
     let (_, header, rows) = plain(dir);
     let t = header.iter().position(|h| h == "t").unwrap();
-    let rows: Vec<Vec<String>> = rows
-        .iter()
-        .enumerate()
-        .map(|(k, r)| {
-            let mut r = r.clone();
-            r[t] = date_time(k, 1);
-            r
-        })
-        .collect();
+    let rows = retimed(&rows, t, |k| date_time(k, 1));
     let file = dir.join("clock.csv");
     write_rows(&file, &header, &rows, false);
     let out = dir.join("out");

@@ -456,34 +456,14 @@ impl ColumnMap {
             let slot = if target.is_none() && name == time {
                 &mut t
             } else {
-                match Kind::of(effective) {
-                    Some((Kind::Input, rest)) => {
-                        match schema.inputs.iter().position(|n| n == rest) {
-                            Some(i) => &mut inputs[i],
-                            None => {
-                                unknown.push(field);
-                                continue;
-                            }
-                        }
-                    }
-                    Some((Kind::Measurement, rest)) => {
-                        match schema.measurements.iter().position(|n| n == rest) {
-                            Some(i) => &mut measurements[i],
-                            None => {
-                                unknown.push(field);
-                                continue;
-                            }
-                        }
-                    }
-                    Some((Kind::State, rest)) => {
-                        match schema.states.iter().position(|n| n == rest) {
-                            Some(i) => &mut states[i],
-                            None => {
-                                unknown.push(field);
-                                continue;
-                            }
-                        }
-                    }
+                let known = Kind::of(effective).and_then(|(kind, rest)| {
+                    let i = kind.names(schema).iter().position(|n| n == rest)?;
+                    Some((kind, i))
+                });
+                match known {
+                    Some((Kind::Input, i)) => &mut inputs[i],
+                    Some((Kind::Measurement, i)) => &mut measurements[i],
+                    Some((Kind::State, i)) => &mut states[i],
                     None => {
                         unknown.push(field);
                         continue;
