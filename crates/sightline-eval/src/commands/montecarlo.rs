@@ -160,9 +160,13 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
             totals.campaign.runs
         ));
     }
+    let sparse = match (totals.campaign.every, totals.campaign.dropout) {
+        (1, d) if d == 0.0 => String::new(),
+        (every, dropout) => format!(" --every {every} --dropout {dropout}"),
+    };
     notes.push(format!(
-        "Run i uses seed derive_seed({}, [i]); `sightline simulate {} --steps {} --seed <that seed>` \
-         and `sightline compare ... --seed <that seed>` reproduce it alone.",
+        "Run i uses seed derive_seed({}, [i]); `sightline simulate {} --steps {}{sparse} --seed \
+         <that seed>` and `sightline compare ... --seed <that seed>` reproduce it alone.",
         totals.campaign.seed, totals.campaign.model, totals.campaign.steps
     ));
     let title = format!(
