@@ -160,9 +160,11 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
             totals.campaign.runs
         ));
     }
-    let sparse = match (totals.campaign.every, totals.campaign.dropout) {
-        (1, d) if d == 0.0 => String::new(),
-        (every, dropout) => format!(" --every {every} --dropout {dropout}"),
+    let (every, dropout) = (totals.campaign.every, totals.campaign.dropout);
+    let sparse = if every == 1 && dropout == 0.0 {
+        String::new()
+    } else {
+        format!(" --every {every} --dropout {dropout}")
     };
     notes.push(format!(
         "Run i uses seed derive_seed({}, [i]); `sightline simulate {} --steps {}{sparse} --seed \
