@@ -441,6 +441,9 @@ pub struct RunOutcome {
     pub series: Option<Series>,
     /// Time of every row, kept only when the run was smoothed (for `smoothed.csv`).
     pub times: Vec<f64>,
+    /// Why the data's truth could not be used (a value whose square overflows), if so: the
+    /// run is then judged as one without truth.
+    pub truth_problem: Option<String>,
 }
 
 /// Per-filter working state of a run.
@@ -508,6 +511,7 @@ pub fn run(
     let mut k: u64 = 0;
     // Smoothing only: the time and truth of every row.
     let (mut times, mut truths) = (Vec::new(), Vec::new());
+    let mut truth_problem: Option<String> = None;
     while source.next_into(&mut record)? {
         crate::interrupt::check(|| format!("at row {k}"))?;
         if let Some(x) = &record.x {
@@ -519,6 +523,23 @@ pub fn run(
                 )));
             }
         }
+        if truth_problem.is_none() {
+            // An error against such a truth overflows for every filter: the truth is at fault.
+            let huge = record.x.as_ref().and_then(|x| {
+                x.iter()
+                    .zip(&layout.states)
+                    .find(|(v, _)| !(*v * *v).is_finite())
+            });
+            if let Some((v, name)) = huge {
+                truth_problem = Some(format!(
+                    "row {k} (t = {}): the truth x.{name} = {v:e} is too large to measure an \
+                     error against (its square overflows), so accuracy and NEES are not measured \
+                     on this dataset",
+                    record.t
+                ));
+            }
+        }
+        let row_truth = record.x.as_ref().filter(|_| truth_problem.is_none());
         if config.smooth {
             times.push(record.t);
             if let Some(x) = &record.x {
@@ -578,7 +599,7 @@ pub fn run(
                 nees: None,
                 nis: None,
             };
-            if let Some(x) = &record.x {
+            if let Some(x) = row_truth {
                 for i in 0..n {
                     lane.error[i] = x[i] - mean[i];
                 }
@@ -642,10 +663,19 @@ pub fn run(
         }
         k += 1;
     }
+    let truth = truth && truth_problem.is_none();
     let truth_rows = (truth && truths.len() == times.len() * n).then_some(truths.as_slice());
+    if truth_problem.is_some() {
+        if let Some(s) = series.as_mut() {
+            s.truth.iter_mut().for_each(|v| *v = f64::NAN);
+        }
+    }
     let filters: Vec<FilterOutcome> = lanes
         .into_iter()
         .map(|mut lane| {
+            if truth_problem.is_some() {
+                lane.outcome.metrics.forget_truth();
+            }
             lane.outcome.diagnostics = lane.filter.diagnostics();
             if config.smooth && lane.outcome.ok() {
                 lane.outcome.smoothing = Some(smooth(lane.filter.as_ref(), k, n, truth_rows));
@@ -667,6 +697,7 @@ pub fn run(
         filters,
         series,
         times,
+        truth_problem,
     })
 }
 

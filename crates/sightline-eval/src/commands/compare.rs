@@ -263,7 +263,7 @@ pub fn compare(
             runner::run(plant, filters, source, &config, observer)?
         }
     };
-    let mut notes = Vec::new();
+    let mut notes: Vec<String> = outcome.truth_problem.iter().cloned().collect();
     let smoothed = options
         .smooth
         .then(|| smoothing_notes(&outcome, &mut notes));
@@ -321,8 +321,9 @@ fn smoothing_notes(outcome: &RunOutcome, notes: &mut Vec<String>) -> SmoothedRun
 }
 
 /// Writes `estimates.csv` (through `write_estimates`), `summary.json` and `report.html` into a
-/// fresh output directory committed atomically onto `output`, prints the table and the verdict
-/// and returns the comparison.
+/// fresh output directory committed atomically onto `output` (with `more`, any further files
+/// the caller writes into it first), prints the table and the verdict and returns the
+/// comparison.
 pub fn compare_to_dir(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
@@ -330,6 +331,7 @@ pub fn compare_to_dir(
     options: &CompareOptions,
     output: &Path,
     title: &str,
+    more: &dyn Fn(&OutputDir) -> Result<()>,
 ) -> Result<(Comparison, PathBuf)> {
     let dir = OutputDir::new(output)?;
     let estimates_path = dir.path("estimates.csv");
@@ -364,6 +366,7 @@ pub fn compare_to_dir(
             source,
         })
     })?;
+    more(&dir)?;
     let target = dir.commit()?;
     Ok((comparison, target))
 }
@@ -400,6 +403,7 @@ pub fn failures_error(summary: &Summary) -> Option<Error> {
 
 /// Runs `compare`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
+    crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
     let plant = configure(plants, &args.plant)?;
     let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
     // Build once before reading so that a bad spec is reported before any work.
@@ -430,6 +434,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         &options,
         &args.output,
         &title,
+        &|_| Ok(()),
     )
     .map_err(|e| match e {
         Error::Interrupted(m) => Error::Interrupted(format!(

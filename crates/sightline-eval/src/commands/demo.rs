@@ -123,10 +123,11 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
         &options,
         output,
         &title,
+        // Keep the dataset beside the results (and in the manifest) so the comparison can be
+        // rerun by hand.
+        &|dir| dir.write("data.csv", |w| write_csv(&data, w)),
     )?;
-    // Keep the dataset beside the results so the comparison can be rerun by hand.
     let data_path: PathBuf = dir.join("data.csv");
-    crate::output::write_file(&data_path, |w| write_csv(&data, w))?;
     print_result(&comparison.summary, &dir, &comparison.notes);
     let sets: String = scenario
         .set

@@ -24,6 +24,7 @@ pub fn run(
     params: &[String],
     output: &Path,
 ) -> Result<()> {
+    crate::output::refuse_inputs_inside(output, &[("dataset", data)])?;
     let plant = configure(plants, args)?;
     let spec = FilterSpec::parse(filter)?;
     // The same seed `compare` gives this label by default, so the likelihoods agree.
@@ -39,7 +40,15 @@ pub fn run(
             "the dataset has a header but no rows",
         ));
     }
-    let tuned = tune(plant.as_ref(), &dataset, &spec, params, seed)?;
+    // The output is checked before the (long) search, and again when it is put in place.
+    crate::output::check_dir(output)?;
+    let tuned = tune(plant.as_ref(), &dataset, &spec, params, seed).map_err(|e| match e {
+        Error::Interrupted(m) => Error::Interrupted(format!(
+            "{m}; nothing was written to {}",
+            output.display()
+        )),
+        other => other,
+    })?;
     let dir = OutputDir::new(output)?;
     let json = serde_json::to_string_pretty(&tuned)
         .map_err(|e| Error::Run(format!("encoding tuned.json: {e}")))?;
