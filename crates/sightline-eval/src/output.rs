@@ -122,6 +122,80 @@ fn sync_path(path: &Path) -> std::io::Result<()> {
     File::open(path)?.sync_all()
 }
 
+/// A writer that remembers the first I/O error of the writer under it, so that an error which
+/// a formatter (CSV, JSON) reports in its own words can still be told as what it is: a
+/// permission or I/O problem of the output, named by its path (exit code 2).
+#[derive(Debug)]
+pub struct Catching<W: Write> {
+    inner: W,
+    error: Option<std::io::Error>,
+}
+
+impl<W: Write> Catching<W> {
+    /// Wraps `inner`.
+    pub fn new(inner: W) -> Self {
+        Catching { inner, error: None }
+    }
+
+    fn note(&mut self, e: &std::io::Error) {
+        if self.error.is_none() {
+            self.error = Some(std::io::Error::new(e.kind(), e.to_string()));
+        }
+    }
+
+    /// `error`, or — if the writer saw an I/O error — that error as an [`Error::Write`] of
+    /// `path`.
+    pub fn explain(&mut self, error: Error, path: &Path) -> Error {
+        match (self.error.take(), error) {
+            (_, e @ Error::Interrupted(_)) => e,
+            (Some(source), _) => Error::Write {
+                path: path.to_path_buf(),
+                source,
+            },
+            (None, e) => e,
+        }
+    }
+
+    /// Flushes and returns the writer under it.
+    pub fn finish(mut self, path: &Path) -> Result<W> {
+        self.flush().map_err(write_err(path))?;
+        Ok(self.inner)
+    }
+}
+
+impl<W: Write> Write for Catching<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let r = self.inner.write(buf);
+        if let Err(e) = &r {
+            self.note(e);
+        }
+        r
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        let r = self.inner.flush();
+        if let Err(e) = &r {
+            self.note(e);
+        }
+        r
+    }
+}
+
+/// Runs `fill` on `inner` (buffered) and returns `inner`, flushed; an I/O error is reported as
+/// a write error of `path` however `fill` worded it.
+fn fill_into<W: Write>(
+    inner: W,
+    path: &Path,
+    fill: impl FnOnce(&mut dyn Write) -> Result<()>,
+) -> Result<W> {
+    let mut w = Catching::new(BufWriter::with_capacity(1 << 16, inner));
+    if let Err(e) = fill(&mut w) {
+        return Err(w.explain(e, path));
+    }
+    w.finish(path)?
+        .into_inner()
+        .map_err(|e| write_err(path)(e.into_error()))
+}
+
 // ---------------------------------------------------------------------------------------------
 // Temporaries: registered while they exist, so that nothing is left behind.
 
@@ -690,11 +764,9 @@ impl OutputDir {
     where
         F: FnOnce(&mut dyn Write) -> Result<()>,
     {
-        let path = self.path(name);
-        let file = File::create(&path).map_err(write_err(&path))?;
-        let mut w = BufWriter::new(file);
-        fill(&mut w)?;
-        w.flush().map_err(write_err(&path))?;
+        let shown = self.checked.target.join(name);
+        let file = File::create(self.path(name)).map_err(write_err(&shown))?;
+        fill_into(file, &shown, fill)?;
         Ok(())
     }
 
@@ -920,7 +992,7 @@ impl FileTarget {
                     exists: false,
                 })
             }
-            Err(source) => Err(Error::Read {
+            Err(source) => Err(Error::Write {
                 path: path.to_path_buf(),
                 source,
             }),
@@ -941,19 +1013,16 @@ impl FileTarget {
     {
         match self {
             FileTarget::Stdout => {
-                let stdout = std::io::stdout();
-                let mut w = BufWriter::new(stdout.lock());
-                fill(&mut w)?;
-                w.flush().map_err(write_err(shown))
+                drop(fill_into(std::io::stdout().lock(), shown, fill)?);
+                Ok(())
             }
             FileTarget::Stream(path) => {
                 let file = fs::OpenOptions::new()
                     .write(true)
                     .open(path)
                     .map_err(write_err(shown))?;
-                let mut w = BufWriter::new(file);
-                fill(&mut w)?;
-                w.flush().map_err(write_err(shown))
+                fill_into(file, shown, fill)?;
+                Ok(())
             }
             FileTarget::Replace { path, exists } => {
                 let mut created = CreatedDirs::create(&parent_of(path))?;
@@ -961,11 +1030,7 @@ impl FileTarget {
                     fs::OpenOptions::new().write(true).create_new(true).open(p)
                 })?;
                 let mut guard = Guard::new(Temporary::File(tmp.clone()));
-                let mut w = BufWriter::new(file);
-                fill(&mut w)?;
-                let file = w
-                    .into_inner()
-                    .map_err(|e| write_err(shown)(e.into_error()))?;
+                let file = fill_into(file, shown, fill)?;
                 if *exists {
                     if let Ok(meta) = fs::metadata(path) {
                         let _ = file.set_permissions(meta.permissions());

@@ -19,7 +19,7 @@ use sightline_filters::FilterSpec;
 use crate::cli::{PlantArgs, configure};
 use crate::dataset::read::{DatasetReader, ReadOptions, RecordSource, Schema};
 use crate::error::{Error, Result};
-use crate::output::OutputDir;
+use crate::output::{Catching, OutputDir};
 use crate::plant::AnyPlant;
 use crate::report::{self, terminal_table};
 use crate::runner::{
@@ -334,18 +334,16 @@ pub fn compare_to_dir(
     more: &dyn Fn(&OutputDir) -> Result<()>,
 ) -> Result<(Comparison, PathBuf)> {
     let dir = OutputDir::new(output)?;
-    let estimates_path = dir.path("estimates.csv");
-    let file = File::create(&estimates_path).map_err(|source| Error::Write {
+    // Messages name the file where it will be, not the temporary directory.
+    let estimates_path = dir.target().join("estimates.csv");
+    let file = File::create(dir.path("estimates.csv")).map_err(|source| Error::Write {
         path: estimates_path.clone(),
         source,
     })?;
-    let mut buffered = BufWriter::with_capacity(1 << 16, file);
-    let comparison = compare(plant, specs, source, options, Some(&mut buffered))?;
-    buffered.flush().map_err(|source| Error::Write {
-        path: estimates_path.clone(),
-        source,
-    })?;
-    drop(buffered);
+    let mut buffered = Catching::new(BufWriter::with_capacity(1 << 16, file));
+    let comparison = compare(plant, specs, source, options, Some(&mut buffered))
+        .map_err(|e| buffered.explain(e, &estimates_path))?;
+    buffered.finish(&estimates_path)?;
     if let Some(smoothed) = &comparison.smoothed {
         let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
         dir.write("smoothed.csv", |w| smoothed.write_csv(w, &states))?;
