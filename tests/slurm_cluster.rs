@@ -71,7 +71,13 @@ fn wait_for(what: &str, limit: Duration, mut done: impl FnMut() -> bool) {
 fn ended(state: &str) -> bool {
     !matches!(
         state,
-        "PENDING" | "RUNNING" | "CONFIGURING" | "COMPLETING" | "REQUEUED" | "RESIZING" | "SUSPENDED"
+        "PENDING"
+            | "RUNNING"
+            | "CONFIGURING"
+            | "COMPLETING"
+            | "REQUEUED"
+            | "RESIZING"
+            | "SUSPENDED"
     )
 }
 
@@ -129,9 +135,9 @@ fn a_sharded_campaign_on_slurm_survives_a_cancelled_task_and_merges_to_the_unsha
     );
     let nodes = text(&slurm("sinfo", &["-h", "-o", "%T"]));
     assert!(
-        nodes
-            .lines()
-            .any(|l| ["idle", "mixed", "allocated"].iter().any(|s| l.starts_with(s))),
+        nodes.lines().any(|l| ["idle", "mixed", "allocated"]
+            .iter()
+            .any(|s| l.starts_with(s))),
         "no Slurm node is up (sinfo says {nodes:?}); start the cluster (`scripts/test` starts a \
          single-node one)"
     );
@@ -182,16 +188,21 @@ fn a_sharded_campaign_on_slurm_survives_a_cancelled_task_and_merges_to_the_unsha
         log.contains("interrupted (SIGTERM)") && log.contains("run the same command again"),
         "task 2's log does not show a safe stop on SIGTERM:\n{log}"
     );
-    assert!(!campaign.join("shard-2").exists(), "a cancelled task wrote its output");
+    assert!(
+        !campaign.join("shard-2").exists(),
+        "a cancelled task wrote its output"
+    );
     let kept = covered_runs(&checkpoint);
     assert!(
         kept > 0 && kept < 400,
         "the checkpoint of the cancelled task covers {kept} of its 400 runs"
     );
     // The first merge job can never run now; Slurm drops it (--kill-on-invalid-dep).
-    wait_for("the first merge job to be dropped", Duration::from_secs(120), || {
-        ended(&job_state(&first_merge))
-    });
+    wait_for(
+        "the first merge job to be dropped",
+        Duration::from_secs(120),
+        || ended(&job_state(&first_merge)),
+    );
     assert_ne!(job_state(&first_merge), "COMPLETED");
 
     // Resubmitted alone, task 2 resumes; a new merge job follows it and the other tasks.
@@ -203,11 +214,16 @@ fn a_sharded_campaign_on_slurm_survives_a_cancelled_task_and_merges_to_the_unsha
     assert_eq!(job_state(&merge), "COMPLETED", "merge log:\n{merge_log}");
     let log = std::fs::read_to_string(campaign.join("logs/task-2.log")).unwrap();
     assert!(
-        log.contains(&format!("resuming from {}", s(&checkpoint.parent().unwrap())))
-            && log.contains(&format!("{kept} of 400 runs already done")),
+        log.contains(&format!(
+            "resuming from {}",
+            s(&checkpoint.parent().unwrap())
+        )) && log.contains(&format!("{kept} of 400 runs already done")),
         "the resubmitted task did not resume from its checkpoint:\n{log}"
     );
-    assert!(!checkpoint.parent().unwrap().exists(), "checkpoint left after completion");
+    assert!(
+        !checkpoint.parent().unwrap().exists(),
+        "checkpoint left after completion"
+    );
 
     // Bit for bit the unsharded result, timings aside.
     let merged = campaign.join("merged");

@@ -58,7 +58,12 @@ pub fn without_timings(v: &serde_json::Value) -> serde_json::Value {
     match v {
         Value::Object(map) => Value::Object(
             map.iter()
-                .filter(|(k, _)| !matches!(k.as_str(), "seconds" | "seconds_per_step" | "content_sha256"))
+                .filter(|(k, _)| {
+                    !matches!(
+                        k.as_str(),
+                        "seconds" | "seconds_per_step" | "content_sha256"
+                    )
+                })
                 .map(|(k, v)| {
                     let v = match (k.as_str(), v) {
                         ("verdict", Value::String(text)) => Value::String(

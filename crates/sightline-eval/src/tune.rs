@@ -225,10 +225,12 @@ pub fn tune(
     let result = Executor::new(objective, solver)
         .configure(|state| state.max_iters(2000))
         .run()
-        .map_err(|e| match crate::interrupt::check(|| "during the search".into()) {
-            Err(stopped) => stopped,
-            Ok(()) => Error::Run(format!("tune: optimiser: {e}")),
-        })?;
+        .map_err(
+            |e| match crate::interrupt::check(|| "during the search".into()) {
+                Err(stopped) => stopped,
+                Ok(()) => Error::Run(format!("tune: optimiser: {e}")),
+            },
+        )?;
     let state = result.state();
     let best = state
         .get_best_param()

@@ -43,10 +43,9 @@ pub fn run(
     // The output is checked before the (long) search, and again when it is put in place.
     crate::output::check_dir(output)?;
     let tuned = tune(plant.as_ref(), &dataset, &spec, params, seed).map_err(|e| match e {
-        Error::Interrupted(m) => Error::Interrupted(format!(
-            "{m}; nothing was written to {}",
-            output.display()
-        )),
+        Error::Interrupted(m) => {
+            Error::Interrupted(format!("{m}; nothing was written to {}", output.display()))
+        }
         other => other,
     })?;
     let dir = OutputDir::new(output)?;
