@@ -709,9 +709,10 @@ pub fn merge_named(parts: Vec<(String, Totals)>) -> Result<Totals> {
         if part.campaign != total.campaign {
             let what = crate::partial::differences(&total.campaign, &part.campaign, true);
             return Err(Error::Usage(format!(
-                "merge: {name} comes from a different campaign than {first_name}: they differ in                  {} (\"there\" is {first_name}, \"here\" {name}).\n  {first_name}: {}\n  {name}: {}\n\
-                 Merge only the shards of one campaign (model, --set, --runs, --steps, --seed and \
-                 -f the same)",
+                "merge: {name} comes from a different campaign than {first_name}: they differ in \
+                 {} (\"there\" is {first_name}, \"here\" {name}).\n  {first_name}: {}\n  \
+                 {name}: {}\nMerge only the shards of one campaign (model, --set, --runs, \
+                 --steps, --seed and -f the same)",
                 what.join(", "),
                 crate::partial::describe(&total.campaign),
                 crate::partial::describe(&part.campaign)
