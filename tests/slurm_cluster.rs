@@ -216,7 +216,7 @@ fn a_sharded_campaign_on_slurm_survives_a_cancelled_task_and_merges_to_the_unsha
     assert!(
         log.contains(&format!(
             "resuming from {}",
-            s(&checkpoint.parent().unwrap())
+            s(checkpoint.parent().unwrap())
         )) && log.contains(&format!("{kept} of 400 runs already done")),
         "the resubmitted task did not resume from its checkpoint:\n{log}"
     );
