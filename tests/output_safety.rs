@@ -212,6 +212,13 @@ fn foreign_trees_are_refused_even_with_a_summary_json() {
         &["compare", "cv", s(&data), "-f", "kf", "-o", s(&data)],
         &["is the output directory itself"],
     );
+    // `..` (or `.`) names no directory of its own to replace.
+    let up = dir.path().join("project").join("..");
+    refused(
+        dir.path(),
+        &["compare", "cv", s(&data), "-f", "kf", "-o", s(&up)],
+        &["not `.`, `..` or `/`"],
+    );
 }
 
 #[test]
@@ -304,24 +311,21 @@ fn merge_never_writes_over_its_own_shards() {
 fn a_campaign_refused_for_its_output_starts_nothing() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("mc");
+    let campaign = [
+        "montecarlo",
+        "cv",
+        "--runs",
+        "50",
+        "--steps",
+        "20",
+        "-f",
+        "kf",
+        "-o",
+        s(&out),
+    ];
     std::fs::create_dir(&out).unwrap();
     std::fs::write(out.join("results.txt"), "mine\n").unwrap();
-    refused(
-        dir.path(),
-        &[
-            "montecarlo",
-            "cv",
-            "--runs",
-            "50",
-            "--steps",
-            "20",
-            "-f",
-            "kf",
-            "-o",
-            s(&out),
-        ],
-        &["results.txt"],
-    );
+    refused(dir.path(), &campaign, &["results.txt"]);
     assert!(!dir.path().join("mc.checkpoint").exists());
     // A checkpoint directory holding something of the user's is not Sightline's either.
     std::fs::remove_dir_all(&out).unwrap();
@@ -330,18 +334,7 @@ fn a_campaign_refused_for_its_output_starts_nothing() {
     std::fs::write(checkpoint.join("todo.txt"), "mine\n").unwrap();
     refused(
         dir.path(),
-        &[
-            "montecarlo",
-            "cv",
-            "--runs",
-            "50",
-            "--steps",
-            "20",
-            "-f",
-            "kf",
-            "-o",
-            s(&out),
-        ],
+        &campaign,
         &[
             "mc.checkpoint",
             "todo.txt",

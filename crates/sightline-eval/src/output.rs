@@ -517,6 +517,13 @@ fn refuse(target: &Path, entry: &Path, problem: &str) -> Error {
 /// of the listed size and SHA-256); it is not read-only; its parent can take a new entry.
 /// Anything else is a usage error (exit code 2) naming the first foreign entry.
 pub fn check_dir(target: &Path) -> Result<Checked> {
+    if !matches!(target.components().next_back(), Some(Component::Normal(_))) {
+        return Err(Error::Usage(format!(
+            "-o {}: name the output directory itself (e.g. -o out), not `.`, `..` or `/`; \
+             nothing was changed",
+            target.display()
+        )));
+    }
     let resolved = follow_links(target)?;
     let meta = match fs::metadata(&resolved) {
         Ok(m) => m,
@@ -1082,7 +1089,7 @@ mod tests {
     fn created_parents_go_away_when_the_output_is_not_completed() {
         let dir = tempfile::tempdir().unwrap();
         let deep = dir.path().join("a").join("b");
-        {
+        let started = || {
             let out = OutputDir::new(&deep.join("out")).unwrap();
             out.write("x.txt", |w| {
                 w.write_all(b"x").map_err(|source| Error::Write {
@@ -1091,17 +1098,11 @@ mod tests {
                 })
             })
             .unwrap();
-        }
+            out
+        };
+        drop(started());
         assert!(!dir.path().join("a").exists(), "created parents removed");
-        let out = OutputDir::new(&deep.join("out")).unwrap();
-        out.write("x.txt", |w| {
-            w.write_all(b"x").map_err(|source| Error::Write {
-                path: "x".into(),
-                source,
-            })
-        })
-        .unwrap();
-        let done = out.commit().unwrap();
+        let done = started().commit().unwrap();
         let manifest: Manifest =
             serde_json::from_str(&fs::read_to_string(done.join(MANIFEST)).unwrap()).unwrap();
         // SHA-256("x") as `printf x | sha256sum` (GNU coreutils) gives it.
