@@ -213,7 +213,7 @@ fn foreign_trees_are_refused_even_with_a_summary_json() {
         &["is the output directory itself"],
     );
     // `..` (or `.`) names no directory of its own to replace.
-    let up = dir.path().join("project").join("..");
+    let up = tree.join("src").join("..");
     refused(
         dir.path(),
         &["compare", "cv", s(&data), "-f", "kf", "-o", s(&up)],
