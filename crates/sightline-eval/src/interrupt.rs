@@ -13,8 +13,8 @@
 //! earlier one intact. An interrupted `montecarlo` keeps the runs it finished in its checkpoint
 //! and says how to resume ([`crate::checkpoint`]).
 //!
-//! A second signal while the first is being honoured ends the process at once, with the same
-//! exit code, after removing every temporary still under construction
+//! A second signal while the first is being honoured ends the process at once (exit code 128 +
+//! that signal's number), after removing every temporary still under construction
 //! ([`crate::output::remove_temporaries`]).
 
 use std::sync::atomic::{AtomicI32, Ordering};
