@@ -12,6 +12,7 @@
 //! ```
 
 use std::ffi::OsString;
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -357,8 +358,9 @@ where
 }
 
 /// Runs the process's command line on `plants`, prints any error and returns the exit code
-/// (0 success, 1 a run failed, 2 bad input or usage, 130 interrupted by Ctrl-C). Installs the
-/// Ctrl-C handler ([`crate::interrupt`]).
+/// (0 success, 1 a run failed, 2 bad input, usage or an unwritable output, 128 + n stopped by
+/// signal n: 130 Ctrl-C, 143 SIGTERM, 129 SIGHUP, 131 SIGQUIT). Installs the signal handler
+/// ([`crate::interrupt`]).
 pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
     crate::interrupt::install();
     match run(std::env::args_os(), &plants) {
@@ -366,11 +368,13 @@ pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
         Err(e) => {
             let text = e.to_string();
             let text = text.trim_end();
-            if text.starts_with("error:") {
-                eprintln!("{text}");
+            let prefix = if text.starts_with("error:") {
+                ""
             } else {
-                eprintln!("error: {text}");
-            }
+                "error: "
+            };
+            // After SIGHUP the terminal may be gone: a failed write must not become a panic.
+            let _ = writeln!(std::io::stderr(), "{prefix}{text}");
             ExitCode::from(e.exit_code())
         }
     }

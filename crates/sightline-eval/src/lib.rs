@@ -16,6 +16,7 @@ pub mod exact_sum;
 pub mod interrupt;
 pub mod metrics;
 pub mod output;
+pub mod partial;
 pub mod pcrlb;
 pub mod plant;
 pub mod report;

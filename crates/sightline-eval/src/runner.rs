@@ -509,6 +509,9 @@ pub struct RunOutcome {
     /// The time cell of every row as written in the data, kept like `times` when the rows were
     /// read from text (empty otherwise).
     pub time_texts: Vec<String>,
+    /// Why the data's truth could not be used (a value whose square overflows), if so: the
+    /// run is then judged as one without truth.
+    pub truth_problem: Option<String>,
 }
 
 /// Per-filter working state of a run.
@@ -577,6 +580,7 @@ pub fn run(
     // Smoothing only: the time and truth of every row.
     let (mut times, mut truths) = (Vec::new(), Vec::new());
     let mut time_texts = Vec::new();
+    let mut truth_problem: Option<String> = None;
     while source.next_into(&mut record)? {
         crate::interrupt::check(|| format!("at row {k}"))?;
         if let Some(x) = &record.x {
@@ -588,6 +592,26 @@ pub fn run(
                 )));
             }
         }
+        if truth_problem.is_none() {
+            // An error against such a truth overflows for every filter: the truth is at fault.
+            let huge = record.x.as_ref().and_then(|x| {
+                x.iter()
+                    .zip(&layout.states)
+                    .find(|(v, _)| !(*v * *v).is_finite())
+            });
+            if let Some((v, name)) = huge {
+                // The time as the data wrote it (a date-time reads better than its seconds).
+                let t = source
+                    .time_text()
+                    .map_or_else(|| record.t.to_string(), str::to_string);
+                truth_problem = Some(format!(
+                    "row {k} (t = {t}): the truth x.{name} = {v:e} is too large to measure an \
+                     error against (its square overflows), so accuracy and NEES are not measured \
+                     on this dataset"
+                ));
+            }
+        }
+        let row_truth = record.x.as_ref().filter(|_| truth_problem.is_none());
         if config.smooth {
             times.push(record.t);
             if let Some(text) = source.time_text() {
@@ -651,7 +675,7 @@ pub fn run(
                 nees: None,
                 nis: None,
             };
-            if let Some(x) = &record.x {
+            if let Some(x) = row_truth {
                 for i in 0..n {
                     lane.error[i] = x[i] - mean[i];
                 }
@@ -715,10 +739,19 @@ pub fn run(
         }
         k += 1;
     }
+    let truth = truth && truth_problem.is_none();
     let truth_rows = (truth && truths.len() == times.len() * n).then_some(truths.as_slice());
+    if truth_problem.is_some() {
+        if let Some(s) = series.as_mut() {
+            s.truth.iter_mut().for_each(|v| *v = f64::NAN);
+        }
+    }
     let filters: Vec<FilterOutcome> = lanes
         .into_iter()
         .map(|mut lane| {
+            if truth_problem.is_some() {
+                lane.outcome.metrics.forget_truth();
+            }
             lane.outcome.diagnostics = lane.filter.diagnostics();
             if config.smooth && lane.outcome.ok() {
                 lane.outcome.smoothing = Some(smooth(lane.filter.as_ref(), k, n, truth_rows));
@@ -741,6 +774,7 @@ pub fn run(
         series,
         times,
         time_texts,
+        truth_problem,
     })
 }
 

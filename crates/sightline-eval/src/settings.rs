@@ -10,6 +10,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::campaign::{CampaignSpec, Shard};
 use crate::plant::AnyPlant;
 
 /// The Sightline version that wrote a result.
@@ -96,6 +97,25 @@ impl Settings {
         }
     }
 
+    /// The settings of the Monte Carlo campaign `spec` (or `shard` of it), made by this
+    /// version; the model's description is left empty (the campaign does not hold it).
+    pub fn of_campaign(spec: &CampaignSpec, shard: Option<Shard>) -> Self {
+        Settings {
+            sightline_version: VERSION.to_string(),
+            command: "montecarlo".to_string(),
+            model: spec.model.clone(),
+            set: spec.set.clone(),
+            seed: spec.seed,
+            filters: spec.filters.clone(),
+            runs: Some(spec.runs),
+            steps: Some(spec.steps),
+            every: Some(spec.every),
+            dropout: Some(spec.dropout),
+            shard: shard.map(|s| s.to_string()),
+            ..Settings::default()
+        }
+    }
+
     /// The command line (after `sightline`, without `-o`) that reruns this result; a dataset
     /// command reads `data` (the recorded path when `None`).
     ///
@@ -115,7 +135,7 @@ impl Settings {
     /// };
     /// assert_eq!(
     ///     s.rerun_args(None).join(" "),
-    ///     "montecarlo cv --set q=0.5 --seed 3 -f kf --runs 10 --steps 50 --every 2 --dropout 0.1"
+    ///     "montecarlo cv --runs 10 --steps 50 --seed 3 -f kf --set q=0.5 --every 2 --dropout 0.1"
     /// );
     /// ```
     pub fn rerun_args(&self, data: Option<&str>) -> Vec<String> {
@@ -129,12 +149,19 @@ impl Settings {
             args.push(name.to_string());
             args.push(value);
         };
-        for s in &self.set {
-            flag("--set", s.clone());
+        // A campaign's size first: it reads best in a resuming command.
+        if let Some(runs) = self.runs {
+            flag("--runs", runs.to_string());
+        }
+        if let Some(steps) = self.steps {
+            flag("--steps", steps.to_string());
         }
         flag("--seed", self.seed.to_string());
         for f in &self.filters {
             flag("-f", f.clone());
+        }
+        for s in &self.set {
+            flag("--set", s.clone());
         }
         if let Some(d) = &self.dataset {
             flag("--time", d.time.clone());
@@ -151,12 +178,6 @@ impl Settings {
         }
         for p in self.params.iter().flatten() {
             flag("--param", p.clone());
-        }
-        if let Some(runs) = self.runs {
-            flag("--runs", runs.to_string());
-        }
-        if let Some(steps) = self.steps {
-            flag("--steps", steps.to_string());
         }
         if let Some(every) = self.every {
             flag("--every", every.to_string());
@@ -184,19 +205,50 @@ impl Settings {
         args
     }
 
-    /// The rerun command as one line for people (arguments quoted where a shell needs it).
+    /// The rerun command as one line for people, without `-o` (arguments quoted where a shell
+    /// needs it).
+    ///
+    /// ```
+    /// use sightline_eval::settings::Settings;
+    /// let s = Settings {
+    ///     command: "montecarlo".into(),
+    ///     model: "cv".into(),
+    ///     filters: vec!["ghkf:order=3|5".into()],
+    ///     runs: Some(10),
+    ///     steps: Some(50),
+    ///     shard: Some("2/4".into()),
+    ///     ..Settings::default()
+    /// };
+    /// assert_eq!(
+    ///     s.command_line(),
+    ///     "sightline montecarlo cv --runs 10 --steps 50 --seed 0 -f 'ghkf:order=3|5' --shard 2/4"
+    /// );
+    /// ```
+    pub fn command_line(&self) -> String {
+        let args: Vec<String> = self
+            .rerun_args(None)
+            .iter()
+            .map(|a| shell_word(a))
+            .collect();
+        format!("sightline {}", args.join(" "))
+    }
+
+    /// [`Settings::command_line`] with `-o DIR`.
     pub fn rerun_line(&self) -> String {
-        let quote = |a: &String| {
-            if !a.is_empty()
-                && a.chars()
-                    .all(|c| c.is_ascii_alphanumeric() || "-_.=/:,+@%".contains(c))
-            {
-                a.clone()
-            } else {
-                format!("'{}'", a.replace('\'', r"'\''"))
-            }
-        };
-        let args: Vec<String> = self.rerun_args(None).iter().map(quote).collect();
-        format!("sightline {} -o DIR", args.join(" "))
+        format!("{} -o DIR", self.command_line())
+    }
+}
+
+/// `word` as a POSIX shell reads it back: as it is when it holds only characters no shell
+/// treats specially, else single-quoted.
+pub fn shell_word(word: &str) -> String {
+    if !word.is_empty()
+        && word
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || "-_.=/:,+@%".contains(c))
+    {
+        word.to_string()
+    } else {
+        format!("'{}'", word.replace('\'', r"'\''"))
     }
 }

@@ -137,6 +137,10 @@ impl CostFunction for Objective<'_> {
     type Output = f64;
 
     fn cost(&self, z: &Self::Param) -> std::result::Result<f64, argmin::core::Error> {
+        // A signal stops the search at the next evaluation (see `crate::interrupt`).
+        if crate::interrupt::requested() {
+            return Err(argmin::core::Error::msg(crate::interrupt::describe()));
+        }
         let ll = self.evaluate(z);
         if let Ok(mut trace) = self.trace.lock() {
             let evaluation = trace.len();
@@ -224,7 +228,12 @@ pub fn tune(
     let result = Executor::new(objective, solver)
         .configure(|state| state.max_iters(2000))
         .run()
-        .map_err(|e| Error::Run(format!("tune: optimiser: {e}")))?;
+        .map_err(
+            |e| match crate::interrupt::check(|| "during the search".into()) {
+                Err(stopped) => stopped,
+                Ok(()) => Error::Run(format!("tune: optimiser: {e}")),
+            },
+        )?;
     let state = result.state();
     let best = state
         .get_best_param()
@@ -235,6 +244,7 @@ pub fn tune(
         .evaluate(&best)
         .ok_or_else(|| Error::Run("tune: the filter fails at the optimum".into()))?;
     let std_errors = standard_errors(&objective, &best, best_ll);
+    crate::interrupt::check(|| "while estimating the standard errors".into())?;
     let trace = trace.into_inner().unwrap_or_default();
     Ok(Tuned {
         params: coords

@@ -20,7 +20,7 @@ use crate::cli::{DatasetArgs, PlantArgs, configure};
 use crate::dataset::read::{DatasetReader, RecordSource, Schema};
 use crate::dataset::time::Clock;
 use crate::error::{Error, Result};
-use crate::output::OutputDir;
+use crate::output::{Catching, OutputDir};
 use crate::plant::AnyPlant;
 use crate::report::{self, terminal_table};
 use crate::runner::{
@@ -90,6 +90,8 @@ pub struct Comparison {
 /// and the report.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ResultContext {
+    /// The report's title.
+    pub title: String,
     /// How the result was made.
     pub settings: Option<Settings>,
     /// The dataset's columns the model did not read.
@@ -293,7 +295,7 @@ pub fn compare(
             runner::run(plant, filters, source, &config, observer)?
         }
     };
-    let mut notes = Vec::new();
+    let mut notes: Vec<String> = outcome.truth_problem.iter().cloned().collect();
     let smoothed = options
         .smooth
         .then(|| smoothing_notes(&outcome, &mut notes));
@@ -353,35 +355,35 @@ fn smoothing_notes(outcome: &RunOutcome, notes: &mut Vec<String>) -> SmoothedRun
 }
 
 /// Writes `estimates.csv` (through `write_estimates`), `summary.json` and `report.html` into a
-/// fresh output directory committed atomically onto `output`, with the `context` (settings,
-/// ignored columns, notes) in the summary and the report, and returns the comparison.
+/// fresh output directory committed atomically onto `output`, with the `context` (title,
+/// settings, ignored columns, notes) in the summary and the report and, with `more`, any
+/// further files the caller writes into it first (e.g. demo's `data.csv`); returns the
+/// comparison.
 pub fn compare_to_dir(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     source: &mut dyn RecordSource,
     options: &CompareOptions,
     output: &Path,
-    title: &str,
     context: ResultContext,
+    more: &dyn Fn(&OutputDir) -> Result<()>,
 ) -> Result<(Comparison, PathBuf)> {
     let dir = OutputDir::new(output)?;
-    let estimates_path = dir.path("estimates.csv");
-    let file = File::create(&estimates_path).map_err(|source| Error::Write {
+    // Messages name the file where it will be, not the temporary directory.
+    let estimates_path = dir.target().join("estimates.csv");
+    let file = File::create(dir.path("estimates.csv")).map_err(|source| Error::Write {
         path: estimates_path.clone(),
         source,
     })?;
-    let mut buffered = BufWriter::with_capacity(1 << 16, file);
-    let mut comparison = compare(plant, specs, source, options, Some(&mut buffered))?;
+    let mut buffered = Catching::new(BufWriter::with_capacity(1 << 16, file));
+    let mut comparison = compare(plant, specs, source, options, Some(&mut buffered))
+        .map_err(|e| buffered.explain(e, &estimates_path))?;
+    buffered.finish(&estimates_path)?;
     comparison.summary.settings = context.settings;
     comparison.summary.ignored_columns = context.ignored_columns;
     let mut notes = context.notes;
     notes.append(&mut comparison.notes);
     comparison.notes = notes;
-    buffered.flush().map_err(|source| Error::Write {
-        path: estimates_path.clone(),
-        source,
-    })?;
-    drop(buffered);
     if let Some(smoothed) = &comparison.smoothed {
         let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
         dir.write("smoothed.csv", |w| smoothed.write_csv(w, &states))?;
@@ -395,13 +397,14 @@ pub fn compare_to_dir(
                 source,
             })
     })?;
-    let html = comparison.report_html(plant, title)?;
+    let html = comparison.report_html(plant, &context.title)?;
     dir.write("report.html", |w| {
         w.write_all(html.as_bytes()).map_err(|source| Error::Write {
             path: PathBuf::from("report.html"),
             source,
         })
     })?;
+    more(&dir)?;
     let target = dir.commit()?;
     Ok((comparison, target))
 }
@@ -468,6 +471,7 @@ pub fn open_dataset(
 
 /// Runs `compare`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
+    crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
     let plant = configure(plants, &args.plant)?;
     // Built once before reading so that a bad spec is reported before any work.
     let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
@@ -482,12 +486,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         smooth: args.smooth,
         ..CompareOptions::default()
     };
-    let title = format!(
-        "Sightline: {} filters on {} ({})",
-        specs.len(),
-        plant.name(),
-        args.data.display()
-    );
+
     let settings = Settings {
         filters: specs.iter().map(|s| s.label.clone()).collect(),
         data: Some(args.data.display().to_string()),
@@ -497,6 +496,12 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     };
     let shown_already = notes.len();
     let context = ResultContext {
+        title: format!(
+            "Sightline: {} filters on {} ({})",
+            specs.len(),
+            plant.name(),
+            args.data.display()
+        ),
         settings: Some(settings),
         ignored_columns: reader.ignored_columns(),
         notes,
@@ -507,8 +512,8 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         &mut reader,
         &options,
         &args.output,
-        &title,
         context,
+        &|_| Ok(()),
     )
     .map_err(|e| match e {
         Error::Interrupted(m) => Error::Interrupted(format!(

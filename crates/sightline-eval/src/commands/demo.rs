@@ -118,7 +118,6 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
         seed: scenario.seed,
         ..CompareOptions::default()
     };
-    let title = format!("Sightline demo: {} with a sensor outage", scenario.model);
     // The demo's result reruns as a `compare` of the data.csv it keeps beside it.
     let sets: Vec<String> = scenario
         .set
@@ -137,6 +136,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
         ..Settings::new("compare", plant.as_ref(), &sets, scenario.seed)
     };
     let context = ResultContext {
+        title: format!("Sightline demo: {} with a sensor outage", scenario.model),
         settings: Some(settings),
         ..ResultContext::default()
     };
@@ -146,12 +146,12 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
         &mut MemorySource::new(&data),
         &options,
         output,
-        &title,
         context,
+        // Keep the dataset beside the results (and in the manifest) so the comparison can be
+        // rerun by hand.
+        &|dir| dir.write("data.csv", |w| write_csv(&data, w)),
     )?;
-    // Keep the dataset beside the results so the comparison can be rerun by hand.
     let data_path: PathBuf = dir.join("data.csv");
-    crate::output::write_file(&data_path, |w| write_csv(&data, w))?;
     print_result(&comparison.summary, &dir, &comparison.notes);
     let sets: String = sets.iter().map(|s| format!(" --set {s}")).collect();
     println!(

@@ -37,6 +37,7 @@ pub struct TuneArgs {
 
 /// Runs `tune`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
+    crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
     let plant = configure(plants, &args.plant)?;
     let spec = FilterSpec::parse(&args.filter)?;
     // The same seed `compare --seed S` gives this label, so the likelihoods agree.
@@ -52,7 +53,16 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
             "the dataset has a header but no rows",
         ));
     }
-    let mut tuned = tune(plant.as_ref(), &dataset, &spec, &args.params, seed)?;
+    // The output is checked before the (long) search, and again when it is put in place.
+    crate::output::check_dir(&args.output)?;
+    let mut tuned =
+        tune(plant.as_ref(), &dataset, &spec, &args.params, seed).map_err(|e| match e {
+            Error::Interrupted(m) => Error::Interrupted(format!(
+                "{m}; nothing was written to {}",
+                args.output.display()
+            )),
+            other => other,
+        })?;
     tuned.settings = Some(Settings {
         filters: vec![spec.label.clone()],
         data: Some(args.data.display().to_string()),
