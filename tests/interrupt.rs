@@ -39,8 +39,8 @@ fn send(child: &Child, signal: &str) {
     assert!(status.success(), "kill -s {signal} failed");
 }
 
-/// Waits (at most a minute) until `ready()`, then sends `signal` and collects the output.
-fn signal_when(mut child: Child, signal: &str, mut ready: impl FnMut() -> bool) -> Output {
+/// Waits (at most a minute) until `ready()`, failing if the child ends first.
+fn wait_until(child: &mut Child, mut ready: impl FnMut() -> bool) {
     let started = Instant::now();
     while !ready() {
         if let Some(status) = child.try_wait().unwrap() {
@@ -52,6 +52,11 @@ fn signal_when(mut child: Child, signal: &str, mut ready: impl FnMut() -> bool) 
         );
         std::thread::sleep(Duration::from_millis(10));
     }
+}
+
+/// Waits (at most a minute) until `ready()`, then sends `signal` and collects the output.
+fn signal_when(mut child: Child, signal: &str, ready: impl FnMut() -> bool) -> Output {
+    wait_until(&mut child, ready);
     send(&child, signal);
     child.wait_with_output().expect("the child exits")
 }
@@ -172,6 +177,131 @@ fn compare_stops_on_every_signal_and_keeps_the_earlier_output() {
             stderr(&out)
         );
         stopped_cleanly(&out, number, dir.path(), &before);
+    }
+}
+
+/// Whether the process `pid` runs a thread named `name` (Linux: `/proc/PID/task/*/comm`).
+#[cfg(target_os = "linux")]
+fn has_thread(pid: u32, name: &str) -> bool {
+    std::fs::read_dir(format!("/proc/{pid}/task"))
+        .map(|tasks| {
+            tasks.flatten().any(|t| {
+                std::fs::read_to_string(t.path().join("comm")).is_ok_and(|c| c.trim() == name)
+            })
+        })
+        .unwrap_or(false)
+}
+
+/// [`signal_when`] for a child that might not stop: it must end within `limit` of the signal
+/// (else it is killed and the test fails; its output must fit the pipes meanwhile).
+fn signal_within(
+    mut child: Child,
+    signal: &str,
+    limit: Duration,
+    ready: impl FnMut() -> bool,
+) -> Output {
+    wait_until(&mut child, ready);
+    send(&child, signal);
+    let sent = Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if sent.elapsed() > limit {
+            let _ = child.kill();
+            let out = child.wait_with_output().unwrap();
+            panic!(
+                "still running {limit:?} after SIG{signal}: {}",
+                stderr(&out)
+            );
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    child.wait_with_output().expect("the child exits")
+}
+
+/// Runs `args` reading `head` on standard input from a pipe that stays open (so a read waits
+/// for good), sends `signal` once `ready(pid)` and returns the output; the command must stop
+/// within half a minute of the signal although neither data nor end of file comes.
+fn signal_while_stdin_stays_open(
+    args: &[&str],
+    head: &[u8],
+    signal: &str,
+    mut ready: impl FnMut(u32) -> bool,
+) -> Output {
+    use std::io::Write;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_sightline"))
+        .args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the sightline binary starts");
+    // Held until the child has exited.
+    let mut pipe = child.stdin.take().unwrap();
+    pipe.write_all(head).unwrap();
+    pipe.flush().unwrap();
+    let id = child.id();
+    let out = signal_within(child, signal, Duration::from_secs(30), || ready(id));
+    drop(pipe);
+    out
+}
+
+#[test]
+fn compare_reading_a_silent_pipe_still_stops_on_every_signal() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("data.csv");
+    // More rows than the time-base check reads ahead (1000), so that the run itself waits.
+    expect(
+        &[
+            "simulate",
+            "cv",
+            "--steps",
+            "1100",
+            "--seed",
+            "3",
+            "-o",
+            s(&data),
+        ],
+        0,
+    );
+    let rows = std::fs::read(&data).unwrap();
+    let out_dir = dir.path().join("out");
+    expect(
+        &["compare", "cv", s(&data), "-f", "kf", "-o", s(&out_dir)],
+        0,
+    );
+    let before = snapshot(dir.path());
+    let args = ["compare", "cv", "-", "-f", "kf", "-o", s(&out_dir)];
+    for (signal, number) in SIGNALS {
+        // Inside the run (its temporary output exists): in its last rows or, soon after,
+        // waiting for the next one.
+        let out = signal_while_stdin_stays_open(&args, &rows, signal, |_| {
+            has_entry(dir.path(), ".out.partial-")
+        });
+        assert!(
+            stderr(&out).contains("nothing was written"),
+            "{}",
+            stderr(&out)
+        );
+        stopped_cleanly(&out, number, dir.path(), &before);
+        // Before the run, with the header and three rows: nothing but a read can wait there,
+        // so the reading thread (started after the signal handler) must hand over the stop.
+        #[cfg(target_os = "linux")]
+        {
+            let mut head = rows
+                .split(|&b| b == b'\n')
+                .take(4)
+                .collect::<Vec<_>>()
+                .join(&b'\n');
+            head.push(b'\n');
+            let out = signal_while_stdin_stays_open(&args, &head, signal, |id| {
+                has_thread(id, "sightline-read")
+            });
+            assert!(
+                stderr(&out).contains("while waiting for data from <stdin>"),
+                "{}",
+                stderr(&out)
+            );
+            stopped_cleanly(&out, number, dir.path(), &before);
+        }
     }
 }
 

@@ -849,16 +849,26 @@ fn skip_bom<R: Read>(input: R) -> std::io::Result<BufReader<R>> {
 
 impl DatasetReader {
     /// Opens `path` and reads its header; a path of `-` reads standard input (streaming, named
-    /// [`STDIN_NAME`] in messages).
+    /// [`STDIN_NAME`] in messages). Standard input and any path that is not a regular file (a
+    /// FIFO, `/dev/stdin`, a terminal) may wait for data indefinitely: they are read through
+    /// [`crate::interrupt::StoppableRead`], so that a signal still stops the command.
     pub fn open(path: &Path, schema: &Schema, options: ReadOptions) -> Result<Self> {
         if path == Path::new("-") {
-            return Self::from_reader(Path::new(STDIN_NAME), std::io::stdin(), schema, options);
+            let stdin = crate::interrupt::StoppableRead::stdin()
+                .map_err(|source| read_error(Path::new(STDIN_NAME), source))?;
+            return Self::from_reader(Path::new(STDIN_NAME), stdin, schema, options);
         }
-        let file = File::open(path).map_err(|source| Error::Read {
-            path: path.to_path_buf(),
-            source,
-        })?;
-        Self::from_reader(path, file, schema, options)
+        let regular = std::fs::metadata(path)
+            .map_err(|source| read_error(path, source))?
+            .is_file();
+        if regular {
+            let file = File::open(path).map_err(|source| read_error(path, source))?;
+            return Self::from_reader(path, file, schema, options);
+        }
+        let owned = path.to_path_buf();
+        let stream = crate::interrupt::StoppableRead::spawn(move || File::open(owned))
+            .map_err(|source| read_error(path, source))?;
+        Self::from_reader(path, stream, schema, options)
     }
 
     /// Reads a dataset from any byte source; `path` names it in messages.
@@ -874,10 +884,7 @@ impl DatasetReader {
             .map(parse_timezone)
             .transpose()
             .map_err(Error::Usage)?;
-        let read_err = |source| Error::Read {
-            path: path.to_path_buf(),
-            source,
-        };
+        let read_err = |source| read_error(path, source);
         let mut buffered = skip_bom(input).map_err(read_err)?;
         let start = buffered.fill_buf().map_err(read_err)?;
         if start.starts_with(b"\xFF\xFE") || start.starts_with(b"\xFE\xFF") {
@@ -1274,16 +1281,29 @@ impl DatasetReader {
     }
 }
 
+/// An I/O error reading the dataset `path`, or the stop that came while the read waited for
+/// data ([`crate::interrupt::is_stop`]).
+fn read_error(path: &Path, source: std::io::Error) -> Error {
+    if crate::interrupt::is_stop(&source) {
+        return Error::Interrupted(format!(
+            "{} while waiting for data from {}",
+            crate::interrupt::describe(),
+            path.display()
+        ));
+    }
+    Error::Read {
+        path: path.to_path_buf(),
+        source,
+    }
+}
+
 fn csv_error(path: &Path, starts: &LineQueue, e: csv::Error) -> Error {
     let (line, column) = match e.position() {
         Some(p) => (line_at(starts, p.byte(), p.line()), 1),
         None => (0, 0),
     };
     match e.into_kind() {
-        csv::ErrorKind::Io(source) => Error::Read {
-            path: path.to_path_buf(),
-            source,
-        },
+        csv::ErrorKind::Io(source) => read_error(path, source),
         csv::ErrorKind::Utf8 { err, .. } => Error::data(
             path,
             line,
