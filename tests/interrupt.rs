@@ -402,6 +402,17 @@ fn campaign(out: &Path, runs: &str) -> Vec<String> {
     .collect()
 }
 
+/// Asserts that the campaign outputs `a` and `b` hold the same results (timings aside).
+fn assert_same_campaign(a: &Path, b: &Path) {
+    for name in ["summary.json", "partial.json"] {
+        assert_eq!(
+            without_timings(&json(&a.join(name))),
+            without_timings(&json(&b.join(name))),
+            "{name}"
+        );
+    }
+}
+
 fn strs(v: &[String]) -> Vec<&str> {
     v.iter().map(String::as_str).collect()
 }
@@ -464,13 +475,7 @@ fn montecarlo_stops_on_every_signal_keeps_its_runs_and_resumes_to_the_same_resul
     assert_eq!(out.status.code(), Some(0), "{err}");
     assert!(err.contains("resuming from"), "{err}");
     assert!(!checkpoint.exists());
-    for name in ["summary.json", "partial.json"] {
-        assert_eq!(
-            without_timings(&json(&target.join(name))),
-            without_timings(&json(&reference.join(name))),
-            "{name}"
-        );
-    }
+    assert_same_campaign(&target, &reference);
 }
 
 #[test]
@@ -520,13 +525,7 @@ fn montecarlo_killed_outright_resumes_from_its_last_save() {
         ],
         "nothing but the output is left"
     );
-    for name in ["summary.json", "partial.json"] {
-        assert_eq!(
-            without_timings(&json(&target.join(name))),
-            without_timings(&json(&reference.join(name))),
-            "{name}"
-        );
-    }
+    assert_same_campaign(&target, &reference);
 }
 
 #[test]
@@ -580,13 +579,7 @@ fn a_changed_command_is_told_what_changed_and_a_larger_runs_extends_the_campaign
     );
     let reference = dir.path().join("reference");
     expect(&strs(&campaign(&reference, "1600")), 0);
-    for name in ["summary.json", "partial.json"] {
-        assert_eq!(
-            without_timings(&json(&target.join(name))),
-            without_timings(&json(&reference.join(name))),
-            "{name}"
-        );
-    }
+    assert_same_campaign(&target, &reference);
 }
 
 #[test]
@@ -653,11 +646,5 @@ fn a_checkpoint_of_other_sensors_names_every_and_dropout_and_resumes_only_its_ow
     let summary = json(&target.join("summary.json"));
     assert_eq!(summary["settings"]["every"], 3, "{summary}");
     assert_eq!(summary["settings"]["dropout"], 0.2, "{summary}");
-    for name in ["summary.json", "partial.json"] {
-        assert_eq!(
-            without_timings(&json(&target.join(name))),
-            without_timings(&json(&done.join(name))),
-            "{name}"
-        );
-    }
+    assert_same_campaign(&target, &done);
 }

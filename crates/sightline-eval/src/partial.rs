@@ -359,34 +359,20 @@ fn validate_settings(
     shard: Option<Shard>,
 ) -> std::result::Result<(), String> {
     let want = Settings::of_campaign(c, shard);
-    let text = |v: Option<String>| v.unwrap_or_else(|| "nothing".into());
+    fn shown<T: ToString>(v: Option<T>) -> String {
+        v.map_or_else(|| "nothing".into(), |v| v.to_string())
+    }
     let pairs = [
         ("the command", settings.command.clone(), want.command),
         ("the model", settings.model.clone(), want.model),
         ("--set", settings.set.join(" "), want.set.join(" ")),
         ("--seed", settings.seed.to_string(), want.seed.to_string()),
         ("-f", settings.filters.join(", "), want.filters.join(", ")),
-        (
-            "--runs",
-            text(settings.runs.map(|v| v.to_string())),
-            text(want.runs.map(|v| v.to_string())),
-        ),
-        (
-            "--steps",
-            text(settings.steps.map(|v| v.to_string())),
-            text(want.steps.map(|v| v.to_string())),
-        ),
-        (
-            "--every",
-            text(settings.every.map(|v| v.to_string())),
-            text(want.every.map(|v| v.to_string())),
-        ),
-        (
-            "--dropout",
-            text(settings.dropout.map(|v| v.to_string())),
-            text(want.dropout.map(|v| v.to_string())),
-        ),
-        ("--shard", text(settings.shard.clone()), text(want.shard)),
+        ("--runs", shown(settings.runs), shown(want.runs)),
+        ("--steps", shown(settings.steps), shown(want.steps)),
+        ("--every", shown(settings.every), shown(want.every)),
+        ("--dropout", shown(settings.dropout), shown(want.dropout)),
+        ("--shard", shown(settings.shard.as_ref()), shown(want.shard)),
     ];
     if let Some((what, a, b)) = pairs.into_iter().find(|(_, a, b)| a != b) {
         return Err(format!(
