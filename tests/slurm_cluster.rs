@@ -86,6 +86,10 @@ const RUNS: &str = "1200";
 const STEPS: &str = "200";
 const SEED: &str = "7";
 const FILTERS: [&str; 3] = ["kf", "ukf", "pf:particles=1000"];
+/// Sparse sensors and a `--set`, so that the merge must also carry the shards' settings.
+const SET: &str = "q=0.5";
+const EVERY: &str = "2";
+const DROPOUT: &str = "0.1";
 
 fn submit(out: &Path, tasks: Option<&str>) -> (String, String) {
     let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/cluster/submit.sh");
@@ -100,6 +104,9 @@ fn submit(out: &Path, tasks: Option<&str>) -> (String, String) {
         .env("SEED", SEED)
         .env("SHARDS", "3")
         .env("FILTERS", FILTERS.join(" "))
+        .env("SETS", SET)
+        .env("EVERY", EVERY)
+        .env("DROPOUT", DROPOUT)
         .env("OUT", out);
     if std::env::var_os("SLURM_CONF").is_none() && Path::new(SCRIPT_CONF).exists() {
         cmd.env("SLURM_CONF", SCRIPT_CONF);
@@ -154,6 +161,12 @@ fn a_sharded_campaign_on_slurm_survives_a_cancelled_task_and_merges_to_the_unsha
         STEPS,
         "--seed",
         SEED,
+        "--set",
+        SET,
+        "--every",
+        EVERY,
+        "--dropout",
+        DROPOUT,
         "-o",
         s(&reference),
     ];
