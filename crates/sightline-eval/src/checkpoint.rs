@@ -17,9 +17,9 @@
 //! loads it, runs only the runs it does not cover and removes it once `DIR` is complete. A
 //! command that differs is refused with the differences named and the command that resumes; a
 //! larger `--runs` extends the campaign (run i uses its own seed whatever the number of runs),
-//! from a checkpoint or from a finished output ([`adopt`]). Because the totals are exact sums, the resumed result is bit
-//! for bit the uninterrupted one (timings aside), and the checkpoint itself can be handed to
-//! `sightline merge` like any shard.
+//! from a checkpoint or from a finished output ([`adopt`]). Because the totals are exact sums,
+//! the resumed result is bit for bit the uninterrupted one (timings aside), and the checkpoint
+//! itself can be handed to `sightline merge` like any shard.
 
 use std::ops::Range;
 use std::path::{Path, PathBuf};

@@ -98,7 +98,8 @@ impl Settings {
     }
 
     /// The settings of the Monte Carlo campaign `spec` (or `shard` of it), made by this
-    /// version; the model's description is left empty (the campaign does not hold it).
+    /// version; the model's description is left empty (the campaign does not hold it: the
+    /// command adds it).
     pub fn of_campaign(spec: &CampaignSpec, shard: Option<Shard>) -> Self {
         Settings {
             sightline_version: VERSION.to_string(),

@@ -223,20 +223,15 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
         every: args.every,
         dropout: args.dropout,
     };
-    let settings = Settings {
-        filters: spec.filters.clone(),
-        runs: Some(spec.runs),
-        steps: Some(spec.steps),
-        every: Some(spec.every),
-        dropout: Some(spec.dropout),
-        ..Settings::new("montecarlo", plant.as_ref(), &args.plant.set, args.seed)
-    };
     let range = match shard {
         Some(s) => s.range(spec.runs),
         None => 0..spec.runs,
     };
     let mut fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
-    fresh.settings = Some(settings);
+    fresh.settings = Some(Settings {
+        model_description: plant.description().to_string(),
+        ..Settings::of_campaign(&spec, None)
+    });
     fresh.set_shard(shard);
     let checked = output::check_dir(&args.output)?;
     let mut checkpoint = Checkpoint::beside(&args.output);
