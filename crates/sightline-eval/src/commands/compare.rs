@@ -486,7 +486,6 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         smooth: args.smooth,
         ..CompareOptions::default()
     };
-
     let settings = Settings {
         filters: specs.iter().map(|s| s.label.clone()).collect(),
         data: Some(args.data.display().to_string()),
