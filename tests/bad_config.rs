@@ -327,7 +327,7 @@ fn an_output_path_that_is_not_ours_is_refused_never_replaced() {
     let stderr = String::from_utf8_lossy(&result.stderr);
     assert_eq!(result.status.code(), Some(2), "{stderr}");
     assert!(
-        stderr.contains("does not hold a Sightline output"),
+        stderr.contains("cat.jpg") && stderr.contains("has no manifest.json"),
         "{stderr}"
     );
     assert_eq!(

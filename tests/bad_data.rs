@@ -3,8 +3,10 @@
 //! - The corpus `tests/data/bad/*.csv` holds one malformed dataset per problem (empty file,
 //!   header without rows, missing `t`, non-numeric cell, ragged row, non-finite or
 //!   non-increasing time, duplicate or unknown columns, missing input, non-finite measurement,
-//!   invalid UTF-8, UTF-16, wrong separator, ...); `NAME.expected` beside each is the exact
-//!   message `sightline compare pendulum NAME.csv` must print (exit code 2).
+//!   invalid UTF-8, UTF-16, wrong separator, mis-mapped column, naive or mixed date-times, a
+//!   time base the plant cannot have, ...); `NAME.expected` beside each is the exact message
+//!   `sightline compare pendulum NAME.csv -f ekf` (plus the flags in `NAME.args`, if any) must
+//!   print (exit code 2).
 //! - Seeded random bytes and seeded mutations of a valid file: never a panic (exit code 101),
 //!   only 0, 1 or 2, and every exit 2 carries a `file:line:column:` location.
 //! - Valid but odd files (CRLF, byte-order mark, blanks around cells, reordered columns, blank
@@ -24,11 +26,13 @@ fn corpus() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/bad")
 }
 
-/// Runs `sightline compare pendulum FILE -f ekf` in `cwd` (so messages name the bare file).
-fn compare_in(cwd: &Path, file: &str, out: &Path) -> std::process::Output {
+/// Runs `sightline compare pendulum FILE -f ekf [EXTRA...]` in `cwd` (so messages name the
+/// bare file).
+fn compare_in(cwd: &Path, file: &str, out: &Path, extra: &[&str]) -> std::process::Output {
     Command::new(env!("CARGO_BIN_EXE_sightline"))
         .current_dir(cwd)
         .args(["compare", "pendulum", file, "-f", "ekf", "-o", s(out)])
+        .args(extra)
         .output()
         .expect("the sightline binary runs")
 }
@@ -51,8 +55,12 @@ fn every_malformed_dataset_gets_its_exact_located_message() {
         let name = path.file_name().unwrap().to_str().unwrap();
         let expected = std::fs::read_to_string(path.with_extension("expected"))
             .unwrap_or_else(|_| panic!("{name} has no .expected file"));
+        // NAME.args, when present, holds the case's extra flags (one per whitespace-separated
+        // word), e.g. `--strict-columns` or `--map sensor=y.height`.
+        let extra = std::fs::read_to_string(path.with_extension("args")).unwrap_or_default();
+        let extra: Vec<&str> = extra.split_whitespace().collect();
         let target = out.path().join("out");
-        let result = compare_in(&corpus(), name, &target);
+        let result = compare_in(&corpus(), name, &target, &extra);
         let stderr = String::from_utf8_lossy(&result.stderr);
         assert_eq!(result.status.code(), Some(2), "{name}: {stderr}");
         assert_eq!(stderr, expected, "{name}");
@@ -67,7 +75,7 @@ fn every_malformed_dataset_gets_its_exact_located_message() {
 fn check_no_crash(dir: &Path, bytes: &[u8], what: &str) -> i32 {
     let file = dir.join("input.csv");
     std::fs::write(&file, bytes).unwrap();
-    let result = compare_in(dir, "input.csv", &dir.join("out"));
+    let result = compare_in(dir, "input.csv", &dir.join("out"), &[]);
     let stderr = String::from_utf8_lossy(&result.stderr);
     let code = result.status.code();
     assert!(

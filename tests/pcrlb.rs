@@ -92,6 +92,8 @@ fn campaign(
         steps,
         seed,
         filters: filters.iter().map(|s| s.to_string()).collect(),
+        every: 1,
+        dropout: 0.0,
     };
     summarise(&run_campaign(plant.as_ref(), &specs, &spec, 0..runs).unwrap())
 }

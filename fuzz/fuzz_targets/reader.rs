@@ -1,5 +1,6 @@
-//! The dataset reader on arbitrary bytes: never a panic, and every dataset error is located
-//! (line and column at least 1) and names the file.
+//! The dataset reader on arbitrary bytes, under the plain options and those of a real log:
+//! never a panic, and every dataset error is located (line and column at least 1) and names
+//! the file.
 #![no_main]
 
 use std::path::Path;
@@ -8,6 +9,7 @@ use libfuzzer_sys::fuzz_target;
 use sightline_eval::Error;
 use sightline_eval::dataset::Record;
 use sightline_eval::dataset::read::{DatasetReader, ReadOptions, Schema};
+use sightline_eval::dataset::time::TimeUnit;
 
 fn schemas() -> Vec<Schema> {
     let with_input = Schema {
@@ -24,12 +26,36 @@ fn schemas() -> Vec<Schema> {
     vec![with_input, with_fallback]
 }
 
+/// The plain options, the lax ones, and those of a real log (its own names, a ms clock,
+/// missing-value tokens, naive date-times in a zone, refused extra columns).
+fn options() -> Vec<ReadOptions> {
+    vec![
+        ReadOptions::default(),
+        ReadOptions {
+            nonfinite_as_missing: true,
+            ..ReadOptions::default()
+        },
+        ReadOptions {
+            time_column: "stamp".into(),
+            time_unit: Some(TimeUnit::Milliseconds),
+            map: vec![
+                ("sensor".into(), "y.position".into()),
+                ("drive".into(), "u.torque".into()),
+            ],
+            missing: vec!["NA".into(), "-".into()],
+            ..ReadOptions::default()
+        },
+        ReadOptions {
+            timezone: Some("Europe/Berlin".into()),
+            strict_columns: true,
+            ..ReadOptions::default()
+        },
+    ]
+}
+
 fuzz_target!(|data: &[u8]| {
     for schema in schemas() {
-        for nonfinite_as_missing in [false, true] {
-            let options = ReadOptions {
-                nonfinite_as_missing,
-            };
+        for options in options() {
             let outcome = DatasetReader::from_reader(
                 Path::new("fuzz.csv"),
                 std::io::Cursor::new(data.to_vec()),

@@ -50,3 +50,68 @@ pub fn without_truth(data: &Path, log: &Path) {
     }
     w.flush().unwrap();
 }
+
+/// A JSON output without what no run reproduces: wall-clock timings (`seconds`,
+/// `seconds_per_step`, the verdict's cost line) and the content hash that covers them.
+pub fn without_timings(v: &serde_json::Value) -> serde_json::Value {
+    use serde_json::Value;
+    match v {
+        Value::Object(map) => Value::Object(
+            map.iter()
+                .filter(|(k, _)| {
+                    !matches!(
+                        k.as_str(),
+                        "seconds" | "seconds_per_step" | "content_sha256"
+                    )
+                })
+                .map(|(k, v)| {
+                    let v = match (k.as_str(), v) {
+                        ("verdict", Value::String(text)) => Value::String(
+                            text.lines()
+                                .filter(|l| !l.starts_with("Cost per step"))
+                                .collect::<Vec<_>>()
+                                .join("\n"),
+                        ),
+                        _ => without_timings(v),
+                    };
+                    (k.clone(), v)
+                })
+                .collect(),
+        ),
+        Value::Array(items) => Value::Array(items.iter().map(without_timings).collect()),
+        other => other.clone(),
+    }
+}
+
+/// Every file and directory under `dir` (relative paths, sorted) with the bytes of each file:
+/// a snapshot to compare before and after a command.
+pub fn snapshot(dir: &Path) -> Vec<(String, Option<Vec<u8>>)> {
+    fn walk(root: &Path, at: &Path, out: &mut Vec<(String, Option<Vec<u8>>)>) {
+        let mut entries: Vec<_> = std::fs::read_dir(at).unwrap().map(|e| e.unwrap()).collect();
+        entries.sort_by_key(|e| e.file_name());
+        for e in entries {
+            let path = e.path();
+            let rel = path.strip_prefix(root).unwrap().display().to_string();
+            let meta = std::fs::symlink_metadata(&path).unwrap();
+            if meta.is_dir() {
+                out.push((format!("{rel}/"), None));
+                walk(root, &path, out);
+            } else if meta.is_file() {
+                out.push((rel, Some(std::fs::read(&path).unwrap())));
+            } else if meta.file_type().is_symlink() {
+                let to = std::fs::read_link(&path).unwrap();
+                out.push((format!("{rel} -> {}", to.display()), None));
+            } else {
+                out.push((format!("{rel} (special)"), None));
+            }
+        }
+    }
+    let mut out = Vec::new();
+    walk(dir, dir, &mut out);
+    out
+}
+
+/// Names of the snapshot entries, for messages.
+pub fn names(snapshot: &[(String, Option<Vec<u8>>)]) -> Vec<&str> {
+    snapshot.iter().map(|(n, _)| n.as_str()).collect()
+}

@@ -17,6 +17,7 @@
 
 use std::io::IsTerminal;
 use std::ops::Range;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
@@ -30,12 +31,13 @@ use crate::exact_sum::ExactSum;
 use crate::metrics::StepMetrics;
 use crate::plant::AnyPlant;
 use crate::runner::{self, Observer, RunConfig};
+use crate::settings::Settings;
 use crate::simulate::SimOptions;
 use crate::summary::{self, DiagnosticsSummary, FilterSummary, StateMap, Status, Summary};
 use crate::verdict;
 
 /// Identifier of the `partial.json` format.
-pub const PARTIAL_FORMAT: &str = "sightline-montecarlo-partial/1";
+pub const PARTIAL_FORMAT: &str = "sightline-montecarlo-partial/3";
 
 /// Errors kept per filter (those of the lowest run indices).
 const KEPT_ERRORS: usize = 20;
@@ -51,7 +53,7 @@ pub fn run_seed(seed: u64, i: u64) -> u64 {
 }
 
 /// What a campaign is: everything that must agree between shards.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct CampaignSpec {
     /// Model name.
     pub model: String,
@@ -65,6 +67,21 @@ pub struct CampaignSpec {
     pub seed: u64,
     /// Filter labels, in order.
     pub filters: Vec<String>,
+    /// `--every K`: each run keeps a measurement only every K rows.
+    pub every: usize,
+    /// `--dropout P`: each simulated measurement component is dropped with probability P.
+    pub dropout: f64,
+}
+
+impl CampaignSpec {
+    /// How each run's dataset is simulated.
+    pub fn sim_options(&self) -> SimOptions {
+        SimOptions {
+            noise_free: false,
+            every: self.every,
+            dropout: self.dropout,
+        }
+    }
 }
 
 /// `--shard K/N`: shard K (1-based) of N.
@@ -104,6 +121,13 @@ impl Shard {
     pub fn range(&self, runs: u64) -> Range<u64> {
         let cut = |k: u64| ((k as u128 * runs as u128) / self.count as u128) as u64;
         cut(self.index - 1)..cut(self.index)
+    }
+}
+
+impl std::fmt::Display for Shard {
+    /// `K/N`, as `--shard` takes it.
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}/{}", self.index, self.count)
     }
 }
 
@@ -227,6 +251,8 @@ pub struct Totals {
     pub states: Vec<String>,
     /// Measurement components.
     pub measurements: usize,
+    /// The `--shard K/N` these totals belong to (`None` for a whole campaign or a merge).
+    pub shard: Option<Shard>,
     /// Run ranges covered, sorted and disjoint.
     pub covered: Vec<[u64; 2]>,
     /// Per filter, in spec order.
@@ -234,6 +260,10 @@ pub struct Totals {
     /// Exact sums of the posterior Cramér–Rao bound's information terms over the runs
     /// (`None` for plants with more than [`crate::pcrlb::MAX_STATES`] states).
     pub pcrlb: Option<PcrlbTotals>,
+    /// How the campaign was run, for the summary's `settings` (`None` for totals made through
+    /// the library without them). Its `shard` always names [`Totals::shard`]
+    /// ([`Totals::set_shard`]).
+    pub settings: Option<Settings>,
 }
 
 /// The PCRLB's share of the totals: the information terms of every run, summed exactly so that
@@ -315,6 +345,15 @@ impl Totals {
     pub fn complete(&self) -> bool {
         self.covered == [[0, self.campaign.runs]]
     }
+
+    /// Sets the `--shard` these totals belong to, in [`Totals::shard`] and in the settings
+    /// alike (so that a rerun from the settings runs the same shard, or the whole campaign).
+    pub fn set_shard(&mut self, shard: Option<Shard>) {
+        self.shard = shard;
+        if let Some(s) = self.settings.as_mut() {
+            s.shard = shard.map(|s| s.to_string());
+        }
+    }
 }
 
 /// One finished run of one filter, before it joins the totals.
@@ -370,7 +409,7 @@ fn one_run(
     let seed = run_seed(campaign.seed, i);
     let steps = campaign.steps as usize;
     let data = plant
-        .simulate(steps, seed, &SimOptions::default())
+        .simulate(steps, seed, &campaign.sim_options())
         .map_err(|e| match e {
             // A Ctrl-C seen while simulating stays an interrupt (exit 130), not a failed run.
             Error::Interrupted(_) => e,
@@ -394,6 +433,9 @@ fn one_run(
         &config,
         &mut per_step,
     )?;
+    if let Some(problem) = &outcome.truth_problem {
+        return Err(Error::Run(format!("run {i} (seed {seed}): {problem}")));
+    }
     let runs = outcome
         .filters
         .into_iter()
@@ -458,9 +500,9 @@ fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
 /// grows with `--steps`; longer runs belong to `simulate` + `compare`, which stream.
 pub const MAX_STEPS: u64 = 1_000_000;
 
-/// Memory budget of the runs in flight at once (their datasets and per-step statistics): the
-/// chunk of runs executed in parallel shrinks for long runs to stay within it. Chunking never
-/// changes a result (the totals are exact sums).
+/// Memory budget of the finished runs waiting to join the totals (their per-step statistics):
+/// the queue is shorter for long runs to stay within it. It never changes a result (the totals
+/// are exact sums).
 const IN_FLIGHT_BYTES: u64 = 256 << 20;
 
 /// Checks a campaign and returns its empty totals (no run covered yet); every spec is built
@@ -484,6 +526,15 @@ pub fn empty_totals(
     if campaign.runs == 0 {
         return Err(Error::Usage("--runs must be at least 1".into()));
     }
+    if campaign.every == 0 {
+        return Err(Error::Usage("--every must be at least 1".into()));
+    }
+    if !(0.0..=1.0).contains(&campaign.dropout) {
+        return Err(Error::Usage(format!(
+            "--dropout must be a probability in [0, 1], got {}",
+            campaign.dropout
+        )));
+    }
     let probe = runner::build_filters(plant, specs, campaign.seed)?;
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
     let steps = campaign.steps as usize;
@@ -492,6 +543,7 @@ pub fn empty_totals(
         campaign: campaign.clone(),
         states: states.clone(),
         measurements: plant.measurements().len(),
+        shard: None,
         covered: Vec::new(),
         filters: probe
             .iter()
@@ -506,6 +558,7 @@ pub fn empty_totals(
                 error: None,
             }
         }),
+        settings: None,
     })
 }
 
@@ -523,16 +576,18 @@ pub fn run_campaign(
 }
 
 /// Runs the given ranges of the campaign's runs into `totals` (from [`empty_totals`] or a
-/// checkpoint), in parallel chunks; `after_chunk` sees the totals after every chunk (e.g. to
-/// save a checkpoint). On an error — Ctrl-C included — the runs that finished are still added
-/// to `totals` (and marked covered) before the error is returned, so nothing finished is lost;
-/// an interrupt takes precedence over other errors.
+/// checkpoint) in parallel; each run joins the totals as soon as it finishes, and `after_run`
+/// sees the totals after every run (e.g. to save a checkpoint). On an error — a signal included
+/// — no new run starts, the runs that finished are still added to `totals` (and marked covered)
+/// and the error is returned, so nothing finished is lost; an interrupt takes precedence over
+/// other errors, then the failure of the lowest run. The totals do not depend on the order in
+/// which runs finish (exact sums; errors kept by run index).
 pub fn run_ranges(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     ranges: &[Range<u64>],
     totals: &mut Totals,
-    after_chunk: &mut dyn FnMut(&Totals) -> Result<()>,
+    after_run: &mut dyn FnMut(&Totals) -> Result<()>,
 ) -> Result<()> {
     let campaign = totals.campaign.clone();
     let with_pcrlb = totals.pcrlb.is_some();
@@ -549,55 +604,89 @@ pub fn run_ranges(
         bar.set_message(format!("{} montecarlo", campaign.model));
         bar
     });
-    // Bounded chunks keep memory flat however many runs there are.
-    let threads = rayon::current_num_threads() as u64;
+    // Finished runs wait in a bounded queue, so memory stays flat however many runs there are
+    // (and long runs, whose per-step statistics are large, queue fewer).
+    let threads = rayon::current_num_threads().max(1) as u64;
     let per_run = campaign
         .steps
         .saturating_mul(24 * specs.len() as u64 + 200)
         .max(1);
-    let chunk = (IN_FLIGHT_BYTES / per_run).clamp(threads.max(1), (threads * 8).max(16));
-    for range in ranges {
-        let mut start = range.start;
-        while start < range.end {
-            let end = start.saturating_add(chunk).min(range.end);
-            let results: Vec<Result<RunResult>> = (start..end)
-                .into_par_iter()
-                .map(|i| {
-                    let r = one_run(plant, specs, &campaign, i, with_pcrlb);
+    let queue = (IN_FLIGHT_BYTES / per_run).clamp(1, 2 * threads) as usize;
+    let (sender, finished) = std::sync::mpsc::sync_channel::<(u64, Result<RunResult>)>(queue);
+    let stop = AtomicBool::new(false);
+    let mut failure: Option<(u64, Error)> = None;
+    std::thread::scope(|scope| {
+        let (stop, campaign) = (&stop, &campaign);
+        scope.spawn(move || {
+            ranges
+                .par_iter()
+                .flat_map(|r| r.clone().into_par_iter())
+                .for_each_with(sender, |sender, i| {
+                    if stop.load(Ordering::Relaxed) || crate::interrupt::requested() {
+                        return;
+                    }
+                    let result = one_run(plant, specs, campaign, i, with_pcrlb);
+                    if sender.send((i, result)).is_err() {
+                        stop.store(true, Ordering::Relaxed);
+                    }
+                });
+        });
+        let keep = |i: u64, e: Error, failure: &mut Option<(u64, Error)>| {
+            stop.store(true, Ordering::Relaxed);
+            let interrupt = matches!(e, Error::Interrupted(_));
+            let replace = match failure {
+                None => true,
+                Some((j, old)) => {
+                    let old_interrupt = matches!(old, Error::Interrupted(_));
+                    (interrupt && !old_interrupt) || (interrupt == old_interrupt && i < *j)
+                }
+            };
+            if replace {
+                *failure = Some((i, e));
+            }
+        };
+        for (i, result) in finished {
+            match result {
+                Ok(run) => {
+                    add_run(totals, i, run);
                     if let Some(bar) = &progress {
                         bar.inc(1);
                     }
-                    r
-                })
-                .collect();
-            let mut failure: Option<Error> = None;
-            for (i, r) in (start..end).zip(results) {
-                match r {
-                    Ok(runs) => add_run(totals, i, runs),
-                    Err(e) => {
-                        let interrupt = matches!(e, Error::Interrupted(_));
-                        if failure.is_none()
-                            || (interrupt && !matches!(failure, Some(Error::Interrupted(_))))
-                        {
-                            failure = Some(e);
-                        }
+                    if let Err(e) = after_run(totals) {
+                        keep(u64::MAX, e, &mut failure);
                     }
                 }
+                Err(e) => keep(i, e, &mut failure),
             }
-            if let Some(e) = failure {
-                if let Some(bar) = &progress {
-                    bar.abandon();
-                }
-                return Err(e);
-            }
-            after_chunk(totals)?;
-            start = end;
         }
+    });
+    if let Some((_, e)) = failure {
+        if let Some(bar) = &progress {
+            bar.abandon();
+        }
+        return Err(e);
+    }
+    if crate::interrupt::requested() && totals_miss(totals, ranges) {
+        // Runs were skipped, not failed: a stop arrived between two runs.
+        if let Some(bar) = &progress {
+            bar.abandon();
+        }
+        return Err(Error::Interrupted(format!(
+            "{} between two runs",
+            crate::interrupt::describe()
+        )));
     }
     if let Some(bar) = progress {
         bar.finish_and_clear();
     }
     Ok(())
+}
+
+/// Whether some run of `ranges` is not covered by `totals`.
+fn totals_miss(totals: &Totals, ranges: &[Range<u64>]) -> bool {
+    ranges
+        .iter()
+        .any(|r| !uncovered(totals, r.clone()).is_empty())
 }
 
 /// Sorts disjoint run ranges and joins adjacent ones.
@@ -636,28 +725,84 @@ pub fn uncovered(totals: &Totals, range: Range<u64>) -> Vec<Range<u64>> {
 /// Adds shard totals into the totals of the whole campaign. The shards must come from the same
 /// campaign and cover disjoint runs; the result covers their union.
 pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
+    merge_named(
+        parts
+            .into_iter()
+            .enumerate()
+            .map(|(i, t)| (format!("part {}", i + 1), t))
+            .collect(),
+    )
+}
+
+fn shard_text(s: Option<Shard>) -> String {
+    match s {
+        Some(s) => format!("shard {s}"),
+        None => "an unsharded campaign".into(),
+    }
+}
+
+/// [`merge`] of totals named (e.g. by their files) for the messages: a different campaign names
+/// what differs and describes both; shards of different `--shard` counts, the same shard given
+/// twice and otherwise overlapping runs are each reported as such.
+pub fn merge_named(parts: Vec<(String, Totals)>) -> Result<Totals> {
     let mut parts = parts.into_iter();
-    let Some(mut total) = parts.next() else {
+    let Some((first_name, mut total)) = parts.next() else {
         return Err(Error::Usage("merge: no shard given".into()));
     };
-    for part in parts {
+    let mut seen: Vec<(String, Option<Shard>, Vec<[u64; 2]>)> =
+        vec![(first_name.clone(), total.shard, total.covered.clone())];
+    for (name, part) in parts {
         if part.campaign != total.campaign {
+            let what = crate::partial::differences(&total.campaign, &part.campaign, true);
             return Err(Error::Usage(format!(
-                "merge: the shards come from different campaigns ({:?} vs {:?}); model, --set, \
-                 --runs, --steps, --seed and -f must all agree",
-                total.campaign, part.campaign
+                "merge: {name} comes from a different campaign than {first_name}: they differ in \
+                 {} (\"there\" is {first_name}, \"here\" {name}).\n  {first_name}: {}\n  \
+                 {name}: {}\nMerge only the shards of one campaign (model, --set, --runs, \
+                 --steps, --seed, -f, --every and --dropout the same)",
+                what.join(", "),
+                crate::partial::describe(&total),
+                crate::partial::describe(&part)
             )));
         }
         if part.states != total.states || part.measurements != total.measurements {
-            return Err(Error::Usage(
-                "merge: the shards describe plants of different shapes".into(),
-            ));
+            return Err(Error::Usage(format!(
+                "merge: {name} and {first_name} describe plants of different shapes (states {} \
+                 vs {}, {} vs {} measurement components): the model was changed between them",
+                part.states.join(", "),
+                total.states.join(", "),
+                part.measurements,
+                total.measurements
+            )));
         }
-        for [a, b] in &part.covered {
-            if let Some([c, d]) = total.covered.iter().find(|[c, d]| a < d && c < b) {
-                return Err(Error::Usage(format!(
-                    "merge: runs {a}..{b} overlap runs {c}..{d} already merged (a shard given twice?)"
-                )));
+        for (other, shard, covered) in &seen {
+            if let (Some(a), Some(b)) = (shard, part.shard) {
+                if a.count != b.count {
+                    return Err(Error::Usage(format!(
+                        "merge: {other} is {} and {name} is {}: the shards were run with \
+                         different --shard counts ({} and {}), so their runs do not fit \
+                         together; merge the N shards of one --shard K/N",
+                        shard_text(Some(*a)),
+                        shard_text(Some(b)),
+                        a.count,
+                        b.count
+                    )));
+                }
+                if a.index == b.index {
+                    return Err(Error::Usage(format!(
+                        "merge: {other} and {name} are both {} (the same shard given twice)",
+                        shard_text(Some(b))
+                    )));
+                }
+            }
+            for [a, b] in &part.covered {
+                if let Some([c, d]) = covered.iter().find(|[c, d]| a < d && c < b) {
+                    return Err(Error::Usage(format!(
+                        "merge: runs {a}..{b} of {name} ({}) overlap runs {c}..{d} of {other} \
+                         ({}); every run must come from exactly one of the given directories",
+                        shard_text(part.shard),
+                        shard_text(*shard)
+                    )));
+                }
             }
         }
         match (total.pcrlb.as_mut(), &part.pcrlb) {
@@ -666,16 +811,22 @@ pub fn merge(parts: Vec<Totals>) -> Result<Totals> {
             }
             (None, None) => {}
             _ => {
-                return Err(Error::Usage(
-                    "merge: the shards disagree on the Cramér–Rao bound's set-up".into(),
-                ));
+                return Err(Error::Usage(format!(
+                    "merge: {name} and {first_name} disagree on the Cramér–Rao bound's set-up \
+                     (the prior was changed between them)"
+                )));
             }
         }
         for (a, b) in total.filters.iter_mut().zip(&part.filters) {
             a.merge(b)?;
         }
+        seen.push((name, part.shard, part.covered.clone()));
         total.covered.extend(part.covered.iter().copied());
         join_ranges(&mut total.covered);
+    }
+    // Totals of several shards belong to no single shard (and neither do their settings).
+    if seen.len() > 1 {
+        total.set_shard(None);
     }
     Ok(total)
 }
@@ -786,13 +937,16 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
     } else {
         None
     };
-    let error = t.errors.first().map(|e| {
-        if t.failures > 1 {
-            format!("{} (and {} more failed runs)", e.error, t.failures - 1)
-        } else {
-            e.error.clone()
-        }
-    });
+    let error = match t.errors.first() {
+        Some(e) if t.failures > 1 => Some(format!(
+            "{} (and {} more failed runs)",
+            e.error,
+            t.failures - 1
+        )),
+        Some(e) => Some(e.error.clone()),
+        None if totals.runs_covered() == 0 => Some(empty_text(totals)),
+        None => None,
+    };
     FilterSummary {
         label: t.label.clone(),
         kind: t.kind.clone(),
@@ -825,6 +979,17 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
     }
 }
 
+/// What an output without runs is: a shard with no run of the campaign in it.
+fn empty_text(totals: &Totals) -> String {
+    match totals.shard {
+        Some(s) => format!(
+            "shard {}/{} holds no run of this {}-run campaign (there are more shards than runs)",
+            s.index, s.count, totals.campaign.runs
+        ),
+        None => "this output covers no run of the campaign".to_string(),
+    }
+}
+
 /// The `summary.json` of a campaign (or of the runs a shard covers).
 pub fn summarise(totals: &Totals) -> Summary {
     let filters: Vec<FilterSummary> = totals
@@ -837,11 +1002,21 @@ pub fn summarise(totals: &Totals) -> Summary {
         .pcrlb
         .as_ref()
         .and_then(|p| p.bound(totals.states.len()).ok());
-    let verdict = verdict::verdict(&filters, true, Some(runs), totals.campaign.steps);
+    let verdict = if runs == 0 {
+        format!(
+            "{}: there is nothing to judge. Merge it with the other shards \
+             (`sightline merge DIR... -o DIR`).",
+            empty_text(totals)
+        )
+    } else {
+        verdict::verdict(&filters, true, Some(runs), totals.campaign.steps)
+    };
     Summary {
         command: "montecarlo".into(),
         model: totals.campaign.model.clone(),
         steps: totals.campaign.steps,
+        settings: totals.settings.clone(),
+        ignored_columns: Vec::new(),
         truth: true,
         criteria: summary::criteria(true, true),
         filters,
@@ -872,12 +1047,16 @@ mod tests {
                 steps: 1,
                 seed: 0,
                 filters: Vec::new(),
+                every: 1,
+                dropout: 0.0,
             },
             states: Vec::new(),
             measurements: 0,
+            shard: None,
             covered,
             filters: Vec::new(),
             pcrlb: None,
+            settings: None,
         };
         assert_eq!(uncovered(&totals, 0..12), vec![3..5, 6..8, 10..12]);
         assert_eq!(uncovered(&totals, 2..9), vec![3..5, 6..8]);

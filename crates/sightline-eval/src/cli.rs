@@ -12,14 +12,18 @@
 //! ```
 
 use std::ffi::OsString;
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Args, Parser, Subcommand};
 
 use crate::commands;
+use crate::dataset::read::{ReadOptions, parse_mapping};
+use crate::dataset::time::TimeUnit;
 use crate::error::{Error, Result};
 use crate::plant::AnyPlant;
+use crate::settings::DatasetSettings;
 
 /// Nonlinear state estimation: write the plant once, compare every estimator on it.
 #[derive(Debug, Parser)]
@@ -49,6 +53,90 @@ impl PlantArgs {
             .filter_map(|s| s.split_once('=').map(|(n, _)| n.trim()))
             .filter_map(|n| n.strip_prefix("u.").map(str::to_string))
             .collect()
+    }
+}
+
+/// The dataset-reading options of every command that reads data (`compare`, `tune`, ...): how a
+/// real log's time column, column names, missing values and extra columns are read.
+#[derive(Debug, Clone, Default, PartialEq, Args)]
+pub struct DatasetArgs {
+    /// Name of the time column (numbers or RFC 3339 date-times; '' for an unnamed first column).
+    #[arg(long = "time", value_name = "COLUMN", default_value = "t")]
+    pub time: String,
+    /// Unit of a numeric time column: s, ms, us, ns, min or h.
+    #[arg(long = "time-unit", value_name = "UNIT", value_parser = parse_time_unit)]
+    pub time_unit: Option<TimeUnit>,
+    /// Time zone of date-times written without offset (e.g. UTC, Europe/Berlin, +02:00); also
+    /// the zone the report's clock shows.
+    #[arg(long, value_name = "TZ")]
+    pub timezone: Option<String>,
+    /// Read column SOURCE as a model quantity (y.<measurement>, u.<input> or x.<state>);
+    /// repeat for several.
+    #[arg(long = "map", value_name = "SOURCE=y.<name>")]
+    pub map: Vec<String>,
+    /// A cell text that marks a missing measurement (e.g. NA, null, -); repeat for several. An
+    /// empty cell is always missing.
+    #[arg(long = "missing", value_name = "TOKEN")]
+    pub missing: Vec<String>,
+    /// Refuse columns the model does not read (they are otherwise ignored with a warning).
+    #[arg(long)]
+    pub strict_columns: bool,
+    /// Accept a time base the plant's dt range refuses (median interval outside it, or ×1000 off
+    /// its nominal dt).
+    #[arg(long)]
+    pub accept_dt: bool,
+    /// Treat non-finite measurement cells (nan, inf) as missing instead of rejecting them.
+    #[arg(long)]
+    pub nonfinite_as_missing: bool,
+}
+
+fn parse_time_unit(text: &str) -> std::result::Result<TimeUnit, String> {
+    text.parse()
+}
+
+impl DatasetArgs {
+    /// The reader options these flags ask for (`--map` items parsed and checked for repeats).
+    pub fn read_options(&self) -> Result<ReadOptions> {
+        let mut map: Vec<(String, String)> = Vec::with_capacity(self.map.len());
+        for item in &self.map {
+            let (source, target) = parse_mapping(item)?;
+            if let Some((_, other)) = map.iter().find(|(s, _)| *s == source) {
+                return Err(Error::Usage(format!(
+                    "--map {item}: column '{source}' is already mapped to {other}; map each \
+                     column once"
+                )));
+            }
+            if let Some((other, _)) = map.iter().find(|(_, t)| *t == target) {
+                return Err(Error::Usage(format!(
+                    "--map {item}: {target} is already read from column '{other}'; read each \
+                     quantity from one column"
+                )));
+            }
+            map.push((source, target));
+        }
+        Ok(ReadOptions {
+            nonfinite_as_missing: self.nonfinite_as_missing,
+            time_column: self.time.trim().to_string(),
+            time_unit: self.time_unit,
+            timezone: self.timezone.clone(),
+            map,
+            missing: self.missing.iter().map(|m| m.trim().to_string()).collect(),
+            strict_columns: self.strict_columns,
+        })
+    }
+
+    /// These flags as recorded in `settings`.
+    pub fn settings(&self) -> DatasetSettings {
+        DatasetSettings {
+            time: self.time.clone(),
+            time_unit: self.time_unit.unwrap_or_default().name().to_string(),
+            timezone: self.timezone.clone(),
+            map: self.map.clone(),
+            missing: self.missing.clone(),
+            strict_columns: self.strict_columns,
+            accept_dt: self.accept_dt,
+            nonfinite_as_missing: self.nonfinite_as_missing,
+        }
     }
 }
 
@@ -84,8 +172,10 @@ pub enum Command {
     Compare {
         #[command(flatten)]
         plant: PlantArgs,
-        /// Dataset CSV.
+        /// Dataset CSV (`-` reads standard input).
         data: PathBuf,
+        #[command(flatten)]
+        dataset: DatasetArgs,
         /// Filter spec KIND[:key=value,...]; repeat for several (default: every applicable kind).
         #[arg(short = 'f', long = "filter", value_name = "SPEC")]
         filters: Vec<String>,
@@ -96,9 +186,6 @@ pub enum Command {
         /// DIR/smoothed.csv and smoothed plots (holds the run in memory).
         #[arg(long)]
         smooth: bool,
-        /// Treat non-finite measurement cells (nan, inf) as missing instead of rejecting them.
-        #[arg(long)]
-        nonfinite_as_missing: bool,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
@@ -122,6 +209,12 @@ pub enum Command {
         /// Run only shard K of N (1-based), e.g. 2/8.
         #[arg(long, value_name = "K/N")]
         shard: Option<String>,
+        /// Keep a measurement only every K rows of each simulated run (multi-rate sensor).
+        #[arg(long, value_name = "K", default_value_t = 1)]
+        every: usize,
+        /// Drop each simulated measurement component with probability P.
+        #[arg(long, value_name = "P", default_value_t = 0.0)]
+        dropout: f64,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
@@ -139,14 +232,19 @@ pub enum Command {
     Tune {
         #[command(flatten)]
         plant: PlantArgs,
-        /// Dataset CSV.
+        /// Dataset CSV (`-` reads standard input).
         data: PathBuf,
+        #[command(flatten)]
+        dataset: DatasetArgs,
         /// Filter spec whose likelihood is maximised.
         #[arg(short = 'f', long = "filter", value_name = "SPEC")]
         filter: String,
         /// Parameter to tune; repeat for several.
         #[arg(long = "param", value_name = "NAME", required = true)]
         params: Vec<String>,
+        /// Seed of a sampling filter's random streams (as in `compare`).
+        #[arg(long, default_value_t = 0)]
+        seed: u64,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
@@ -196,8 +294,10 @@ pub fn parse_set(item: &str) -> Result<(String, f64)> {
 /// Finds a plant by name and applies the `--set` overrides.
 ///
 /// Model parameters are applied before prior means (`x0.`), prior standard deviations (`sd0.`)
-/// and inputs (`u.`), each group in the order given, so that a parameter that sizes the plant (`tankchain`'s `n`) may come anywhere
-/// on the command line.
+/// and inputs (`u.`), each group in the order given, so that a parameter that sizes the plant
+/// (`tankchain`'s `n`) may come anywhere on the command line. A name given twice is refused
+/// (which value was meant?), never last-wins; an input given a constant that the data also has
+/// as a column is refused by the dataset reader.
 pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<dyn AnyPlant>> {
     let Some(found) = plants.iter().find(|p| p.name() == args.model) else {
         return Err(Error::Usage(format!(
@@ -216,6 +316,14 @@ pub fn configure(plants: &[Box<dyn AnyPlant>], args: &PlantArgs) -> Result<Box<d
         .iter()
         .map(|item| parse_set(item))
         .collect::<Result<Vec<_>>>()?;
+    for (i, (name, value)) in sets.iter().enumerate() {
+        if let Some((_, first)) = sets[..i].iter().find(|(n, _)| n == name) {
+            return Err(Error::Usage(format!(
+                "--set {name} is given twice ({name}={first} and {name}={value}); which one did \
+                 you mean? Give each name once"
+            )));
+        }
+    }
     // Stable: parameters first, then x0./sd0./u. overrides, each in command-line order.
     sets.sort_by_key(|(name, _)| {
         ["x0.", "sd0.", "u."]
@@ -255,8 +363,9 @@ where
 }
 
 /// Runs the process's command line on `plants`, prints any error and returns the exit code
-/// (0 success, 1 a run failed, 2 bad input or usage, 130 interrupted by Ctrl-C). Installs the
-/// Ctrl-C handler ([`crate::interrupt`]).
+/// (0 success, 1 a run failed, 2 bad input, usage or an unwritable output, 128 + n stopped by
+/// signal n: 130 Ctrl-C, 143 SIGTERM, 129 SIGHUP, 131 SIGQUIT). Installs the signal handler
+/// ([`crate::interrupt`]).
 pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
     crate::interrupt::install();
     match run(std::env::args_os(), &plants) {
@@ -264,11 +373,13 @@ pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
         Err(e) => {
             let text = e.to_string();
             let text = text.trim_end();
-            if text.starts_with("error:") {
-                eprintln!("{text}");
+            let prefix = if text.starts_with("error:") {
+                ""
             } else {
-                eprintln!("error: {text}");
-            }
+                "error: "
+            };
+            // After SIGHUP the terminal may be gone: a failed write must not become a panic.
+            let _ = writeln!(std::io::stderr(), "{prefix}{text}");
             ExitCode::from(e.exit_code())
         }
     }

@@ -1,5 +1,5 @@
-//! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input,
-//! 130 interrupted by Ctrl-C).
+//! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input
+//! or an output that cannot be written, 128 + n stopped by signal n).
 
 use std::path::PathBuf;
 
@@ -39,7 +39,8 @@ pub enum Error {
         /// Cause.
         source: std::io::Error,
     },
-    /// A file that cannot be written (exit code 1).
+    /// A file or directory that cannot be written (exit code 2: a permission or I/O problem
+    /// of the output, named by its path).
     #[error("cannot write {}: {source}", path.display())]
     Write {
         /// File or directory.
@@ -50,24 +51,25 @@ pub enum Error {
     /// A run that failed (exit code 1).
     #[error("{0}")]
     Run(String),
-    /// Stopped by Ctrl-C (SIGINT) before it finished (exit code 130); the message says what was
-    /// kept (see [`crate::interrupt`]).
+    /// Stopped by a signal (SIGINT, SIGTERM, SIGHUP, SIGQUIT) before it finished (exit code
+    /// 128 + the signal's number); the message says what was kept (see [`crate::interrupt`]).
     #[error("{0}")]
     Interrupted(String),
 }
 
 impl Error {
-    /// Process exit code for this error: 2 for bad input or usage, 1 for a failed run, 130 for
-    /// an interrupted one.
+    /// Process exit code for this error: 2 for bad input, usage or an unwritable output, 1 for
+    /// a failed run, 128 + n for one stopped by signal n.
     pub fn exit_code(&self) -> u8 {
         match self {
             Error::Usage(_)
             | Error::Param(_)
             | Error::Spec(_)
             | Error::Data { .. }
-            | Error::Read { .. } => 2,
-            Error::Write { .. } | Error::Run(_) => 1,
-            Error::Interrupted(_) => crate::interrupt::EXIT_CODE,
+            | Error::Read { .. }
+            | Error::Write { .. } => 2,
+            Error::Run(_) => 1,
+            Error::Interrupted(_) => crate::interrupt::exit_code(),
         }
     }
 

@@ -335,6 +335,17 @@ impl FilterMetrics {
         }
     }
 
+    /// Forgets the accuracy measured so far (squared errors and NEES), for a run whose truth
+    /// turned out unusable.
+    pub fn forget_truth(&mut self) {
+        self.sse.iter_mut().for_each(|s| *s = 0.0);
+        self.nees_sum = 0.0;
+        self.nees_steps = 0;
+        self.nees_inside = 0;
+        self.nees_below = 0;
+        self.nees_above = 0;
+    }
+
     /// Records an update: its innovation (if any component was present, with `y` telling which)
     /// and log-likelihood increment. Returns the NIS and its dof.
     pub fn add_update(

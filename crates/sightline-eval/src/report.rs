@@ -9,8 +9,10 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::chi2;
+use crate::dataset::time::Clock;
 use crate::error::{Error, Result};
 use crate::runner::Series;
+use crate::settings::Settings;
 use crate::summary::{FilterSummary, Status, Summary};
 use crate::verdict::{duration, sig};
 
@@ -85,6 +87,9 @@ pub struct LinePlot {
     pub log_y: bool,
     /// Caption under the plot.
     pub caption: String,
+    /// The data's clock when x is time in seconds since the first row: ticks are then shown in
+    /// the data's own terms (clock time for date-times, the data's unit for numbers).
+    pub clock: Option<Clock>,
 }
 
 /// A bar plot, one bar per filter.
@@ -245,7 +250,13 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
             sig(snap(*v, y_span), 3)
         }
     };
-    let x_format = move |v: &f64| sig(snap(*v, x_span), 3);
+    let clock = plot.clock.as_ref();
+    let x_format = move |v: &f64| {
+        let v = snap(*v, x_span);
+        clock
+            .and_then(|c| c.tick(v, x_span))
+            .unwrap_or_else(|| sig(v, 3))
+    };
     chart
         .configure_mesh()
         .x_desc(plot.x_label.as_str())
@@ -585,6 +596,12 @@ pub fn render_html(
         html.push_str("</tr>\n");
     }
     html.push_str("</tbody></table>\n");
+    if !summary.ignored_columns.is_empty() {
+        html.push_str(&format!(
+            "<p>Columns of the dataset the model does not read (ignored): {}.</p>\n",
+            escape(&summary.ignored_columns.join(", "))
+        ));
+    }
     for f in summary.filters.iter().filter(|f| f.error.is_some()) {
         html.push_str(&format!(
             "<p class=\"failed\">{}: {}</p>\n",
@@ -601,6 +618,9 @@ pub fn render_html(
             escape(plot.caption())
         ));
     }
+    if let Some(settings) = &summary.settings {
+        html.push_str(&settings_section(settings));
+    }
     html.push_str(
         "<script>(function(){var f=document.querySelectorAll('figure.plot'),ok=0;\
          f.forEach(function(e){var s=e.querySelector('svg'),r=false;if(s){var b=s.getBBox();\
@@ -611,6 +631,23 @@ pub fn render_html(
     );
     html.push_str("</body></html>\n");
     Ok(html)
+}
+
+/// The report's "Settings" section: the rerun command and the `settings` object as recorded in
+/// `summary.json`.
+fn settings_section(settings: &Settings) -> String {
+    let json = serde_json::to_string_pretty(settings).unwrap_or_default();
+    format!(
+        "<h2 id=\"settings\">Settings</h2>\n<p>Sightline {} ran {} on model {} ({}). To rerun \
+         it:</p>\n<pre>{}</pre>\n<details><summary>settings as recorded in summary.json</summary>\
+         <pre>{}</pre></details>\n",
+        escape(&settings.sightline_version),
+        escape(&settings.command),
+        escape(&settings.model),
+        escape(&settings.model_description),
+        escape(&settings.rerun_line()),
+        escape(&json)
+    )
 }
 
 fn time_band(series: &Series, lo: f64, hi: f64) -> Vec<(f64, f64, f64)> {
@@ -626,7 +663,9 @@ pub fn compare_plots(
     series: &Series,
     states: &[sightline_core::Variable],
     measurements: &[sightline_core::Variable],
+    clock: &Clock,
 ) -> Vec<Plot> {
+    let time_label = clock.axis_label();
     let mut plots = Vec::new();
     let (n, m, nf) = (series.states, series.measurements, series.filters);
     let rows = series.len();
@@ -636,12 +675,13 @@ pub fn compare_plots(
         let mut plot = LinePlot {
             id: format!("state-{}", state.name),
             title: format!("{} [{}]", state.name, state.unit),
-            x_label: "t [s]".into(),
+            x_label: time_label.clone(),
             y_label: format!("{} [{}]", state.name, state.unit),
             areas: Vec::new(),
             lines: Vec::new(),
             dots: Vec::new(),
             log_y: false,
+            clock: Some(clock.clone()),
             caption: format!(
                 "State {}: each filter's posterior mean with its ±2σ band{}.",
                 state.name,
@@ -698,7 +738,7 @@ pub fn compare_plots(
         plots.push(Plot::Lines(plot));
     }
     if series.smoothed() {
-        plots.extend(smoothed_plots(summary, series, states));
+        plots.extend(smoothed_plots(summary, series, states, clock));
     }
     for (j, meas) in measurements.iter().enumerate().take(m) {
         if shown_measurement[j] {
@@ -707,7 +747,7 @@ pub fn compare_plots(
         plots.push(Plot::Lines(LinePlot {
             id: format!("measurement-{}", meas.name),
             title: format!("measurement {} [{}]", meas.name, meas.unit),
-            x_label: "t [s]".into(),
+            x_label: time_label.clone(),
             y_label: format!("{} [{}]", meas.name, meas.unit),
             areas: Vec::new(),
             lines: Vec::new(),
@@ -719,6 +759,7 @@ pub fn compare_plots(
                     .collect(),
             )],
             log_y: false,
+            clock: Some(clock.clone()),
             caption: format!(
                 "Measurement {} as recorded; gaps are missing values.",
                 meas.name
@@ -730,7 +771,7 @@ pub fn compare_plots(
             plots.push(Plot::Lines(LinePlot {
                 id: "nees".into(),
                 title: "NEES over time".into(),
-                x_label: "t [s]".into(),
+                x_label: time_label.clone(),
                 y_label: "NEES (log scale)".into(),
                 areas: vec![Area {
                     name: format!("95 % band of χ²({n})"),
@@ -750,6 +791,7 @@ pub fn compare_plots(
                     .collect(),
                 dots: Vec::new(),
                 log_y: true,
+                clock: Some(clock.clone()),
                 caption: format!(
                     "Normalised estimation error squared eᵀP⁻¹e of each posterior; a consistent \
                      filter stays inside the χ²({n}) band about 95 % of the time \
@@ -762,7 +804,7 @@ pub fn compare_plots(
         plots.push(Plot::Lines(LinePlot {
             id: "nis".into(),
             title: "NIS over time".into(),
-            x_label: "t [s]".into(),
+            x_label: time_label.clone(),
             y_label: "NIS (log scale)".into(),
             areas: vec![Area {
                 name: format!("95 % band of χ²({m})"),
@@ -782,6 +824,7 @@ pub fn compare_plots(
                 .collect(),
             dots: Vec::new(),
             log_y: true,
+            clock: Some(clock.clone()),
             caption: format!(
                 "Normalised innovation squared νᵀS⁻¹ν of each update; the band is that of all {m} \
                  components present (fewer components present lower the expected value)."
@@ -832,6 +875,7 @@ pub fn compare_plots(
             lines,
             dots: Vec::new(),
             log_y: false,
+            clock: None,
             caption: format!(
                 "Normalised sample autocorrelation of the standardised innovation of {name}; a \
                  white sequence stays inside ±1.96/√N at about 95 % of the lags (Mehra, IEEE TAC \
@@ -849,7 +893,9 @@ fn smoothed_plots(
     summary: &Summary,
     series: &Series,
     states: &[sightline_core::Variable],
+    clock: &Clock,
 ) -> Vec<Plot> {
+    let time_label = clock.axis_label();
     let (n, nf) = (series.states, series.filters);
     let rows = series.len();
     let mut plots = Vec::new();
@@ -903,11 +949,12 @@ fn smoothed_plots(
         plots.push(Plot::Lines(LinePlot {
             id: format!("smoothed-{}", state.name),
             title: format!("{} smoothed [{}]", state.name, state.unit),
-            x_label: "t [s]".into(),
+            x_label: time_label.clone(),
             y_label: format!("{} [{}]", state.name, state.unit),
             areas,
             lines,
             dots: Vec::new(),
+            clock: Some(clock.clone()),
             log_y: false,
             caption: format!(
                 "State {}: each smoother's estimate from all the measurements (--smooth), with \
@@ -1018,6 +1065,7 @@ mod tests {
             }],
             dots: Vec::new(),
             log_y: true,
+            clock: None,
             caption: String::new(),
         });
         let svg = render_svg(&plot).unwrap();

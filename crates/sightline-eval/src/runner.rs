@@ -118,8 +118,55 @@ pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterS
     Ok(parsed)
 }
 
+/// The filters a command runs: those `specs` name, each built once so that a bad spec is a usage
+/// error before any work; with no `-f`, the default kinds ([`parse_specs`]) that can run on the
+/// plant — a kind whose build fails on it (e.g. `ghkf`, whose 3ⁿ points exceed the cap on a
+/// 64-state plant) is skipped, and the returned note says which and why.
+pub fn choose_specs(
+    plant: &dyn AnyPlant,
+    specs: &[String],
+    seed: u64,
+) -> Result<(Vec<FilterSpec>, Option<String>)> {
+    let parsed = parse_specs(plant, specs)?;
+    if !specs.is_empty() {
+        build_filters(plant, &parsed, seed)?;
+        return Ok((parsed, None));
+    }
+    let mut kept = Vec::with_capacity(parsed.len());
+    let mut skipped = Vec::new();
+    for spec in parsed {
+        match plant.build_filter(&spec, filter_seed(seed, &spec.label)) {
+            Ok(_) => kept.push(spec),
+            Err(e) => skipped.push(format!("{} ({e})", spec.label)),
+        }
+    }
+    if kept.is_empty() {
+        return Err(Error::Usage(format!(
+            "no default filter can run on model '{}': {}",
+            plant.name(),
+            skipped.join("; ")
+        )));
+    }
+    let note = (!skipped.is_empty()).then(|| {
+        format!(
+            "the default filter set skips what cannot run on model '{}': {}",
+            plant.name(),
+            skipped.join("; ")
+        )
+    });
+    Ok((kept, note))
+}
+
 /// Watches each filter's posterior after each update.
 pub trait Observer {
+    /// Row `k` at time `t` (seconds since the first row) begins; `time_text` is its time cell as
+    /// written in the data, when it was read from text. Called before the row's
+    /// [`Observer::filter_step`]s.
+    fn begin_row(&mut self, k: u64, t: f64, time_text: Option<&str>) -> Result<()> {
+        let _ = (k, t, time_text);
+        Ok(())
+    }
+
     /// Row `k` at time `t`: filter number `index` has updated; `sd` is the square root of its
     /// covariance diagonal and `step` its NEES/NIS at this step.
     fn filter_step(
@@ -152,12 +199,14 @@ impl Observer for NoObserver {
 }
 
 /// Writes `estimates.csv` as the run goes: `filter,t,x.<state>...,sd.<state>...`, one row per
-/// filter per step, in row order then filter order. A failed filter has no rows from its failing
-/// step on.
+/// filter per step, in row order then filter order; `t` is the data's own time cell (a
+/// date-time stays a date-time), or the number when the rows were not read from text. A failed
+/// filter has no rows from its failing step on.
 pub struct EstimatesWriter<W: std::io::Write> {
     csv: csv::Writer<W>,
     labels: Vec<String>,
     cell: String,
+    time_text: Option<String>,
 }
 
 impl<W: std::io::Write> EstimatesWriter<W> {
@@ -172,6 +221,7 @@ impl<W: std::io::Write> EstimatesWriter<W> {
             csv,
             labels,
             cell: String::new(),
+            time_text: None,
         })
     }
 
@@ -195,6 +245,18 @@ fn csv_write(e: csv::Error) -> Error {
 }
 
 impl<W: std::io::Write> Observer for EstimatesWriter<W> {
+    fn begin_row(&mut self, _k: u64, _t: f64, time_text: Option<&str>) -> Result<()> {
+        match (time_text, &mut self.time_text) {
+            (Some(text), Some(kept)) => {
+                kept.clear();
+                kept.push_str(text);
+            }
+            (Some(text), None) => self.time_text = Some(text.to_string()),
+            (None, _) => self.time_text = None,
+        }
+        Ok(())
+    }
+
     fn filter_step(
         &mut self,
         _k: u64,
@@ -206,7 +268,10 @@ impl<W: std::io::Write> Observer for EstimatesWriter<W> {
     ) -> Result<()> {
         let label = self.labels.get(index).map(String::as_str).unwrap_or("");
         self.csv.write_field(label).map_err(csv_write)?;
-        self.number(t)?;
+        match &self.time_text {
+            Some(text) => self.csv.write_field(text).map_err(csv_write)?,
+            None => self.number(t)?,
+        }
         for &m in filter.mean() {
             self.number(m)?;
         }
@@ -441,6 +506,12 @@ pub struct RunOutcome {
     pub series: Option<Series>,
     /// Time of every row, kept only when the run was smoothed (for `smoothed.csv`).
     pub times: Vec<f64>,
+    /// The time cell of every row as written in the data, kept like `times` when the rows were
+    /// read from text (empty otherwise).
+    pub time_texts: Vec<String>,
+    /// Why the data's truth could not be used (a value whose square overflows), if so: the
+    /// run is then judged as one without truth.
+    pub truth_problem: Option<String>,
 }
 
 /// Per-filter working state of a run.
@@ -508,6 +579,8 @@ pub fn run(
     let mut k: u64 = 0;
     // Smoothing only: the time and truth of every row.
     let (mut times, mut truths) = (Vec::new(), Vec::new());
+    let mut time_texts = Vec::new();
+    let mut truth_problem: Option<String> = None;
     while source.next_into(&mut record)? {
         crate::interrupt::check(|| format!("at row {k}"))?;
         if let Some(x) = &record.x {
@@ -519,12 +592,36 @@ pub fn run(
                 )));
             }
         }
+        if truth_problem.is_none() {
+            // An error against such a truth overflows for every filter: the truth is at fault.
+            let huge = record.x.as_ref().and_then(|x| {
+                x.iter()
+                    .zip(&layout.states)
+                    .find(|(v, _)| !(*v * *v).is_finite())
+            });
+            if let Some((v, name)) = huge {
+                // The time as the data wrote it (a date-time reads better than its seconds).
+                let t = source
+                    .time_text()
+                    .map_or_else(|| record.t.to_string(), str::to_string);
+                truth_problem = Some(format!(
+                    "row {k} (t = {t}): the truth x.{name} = {v:e} is too large to measure an \
+                     error against (its square overflows), so accuracy and NEES are not measured \
+                     on this dataset"
+                ));
+            }
+        }
+        let row_truth = record.x.as_ref().filter(|_| truth_problem.is_none());
         if config.smooth {
             times.push(record.t);
+            if let Some(text) = source.time_text() {
+                time_texts.push(text.to_string());
+            }
             if let Some(x) = &record.x {
                 truths.extend_from_slice(x);
             }
         }
+        observer.begin_row(k, record.t, source.time_text())?;
         let keep = series
             .as_mut()
             .map(|s| {
@@ -578,7 +675,7 @@ pub fn run(
                 nees: None,
                 nis: None,
             };
-            if let Some(x) = &record.x {
+            if let Some(x) = row_truth {
                 for i in 0..n {
                     lane.error[i] = x[i] - mean[i];
                 }
@@ -642,10 +739,19 @@ pub fn run(
         }
         k += 1;
     }
+    let truth = truth && truth_problem.is_none();
     let truth_rows = (truth && truths.len() == times.len() * n).then_some(truths.as_slice());
+    if truth_problem.is_some() {
+        if let Some(s) = series.as_mut() {
+            s.truth.iter_mut().for_each(|v| *v = f64::NAN);
+        }
+    }
     let filters: Vec<FilterOutcome> = lanes
         .into_iter()
         .map(|mut lane| {
+            if truth_problem.is_some() {
+                lane.outcome.metrics.forget_truth();
+            }
             lane.outcome.diagnostics = lane.filter.diagnostics();
             if config.smooth && lane.outcome.ok() {
                 lane.outcome.smoothing = Some(smooth(lane.filter.as_ref(), k, n, truth_rows));
@@ -667,6 +773,8 @@ pub fn run(
         filters,
         series,
         times,
+        time_texts,
+        truth_problem,
     })
 }
 

@@ -6,7 +6,9 @@
 //! `log_likelihood`, `seconds_per_step`, `smoothed_rmse_all` (with `compare --smooth` also
 //! `smoothed_rmse`, state → value, and `smoother`); `montecarlo` adds `runs`,
 //! `failures`, `rmse_all_spread` and `anees_band`, and at top level `runs` and
-//! `pcrlb_rmse_all`. Extra keys (bands, whiteness, diagnostics, criteria) add detail without
+//! `pcrlb_rmse_all`. At top level every result carries `settings` (how to rerun it, see
+//! [`crate::settings`]) and `ignored_columns` (the dataset's columns the model did not read).
+//! Extra keys (bands, whiteness, diagnostics, criteria) add detail without
 //! changing any contract key.
 
 use std::fmt;
@@ -16,6 +18,7 @@ use serde::ser::SerializeMap;
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 
 use crate::metrics::WhitenessSummary;
+use crate::settings::Settings;
 
 /// A map from state name to value that keeps model order in JSON.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -178,6 +181,12 @@ pub struct Summary {
     pub model: String,
     /// Rows per dataset.
     pub steps: u64,
+    /// How the result was made: enough to rerun it (absent in files written before it existed).
+    #[serde(default)]
+    pub settings: Option<Settings>,
+    /// Columns of the dataset the model did not read (ignored with a warning).
+    #[serde(default)]
+    pub ignored_columns: Vec<String>,
     /// Whether accuracy could be measured (the data carried truth).
     pub truth: bool,
     /// What the verdict and report judged by.

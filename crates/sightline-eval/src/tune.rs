@@ -56,6 +56,9 @@ pub struct Tuned {
     pub iterations: u64,
     /// Every evaluation of the objective, in order.
     pub trace: Vec<TraceEntry>,
+    /// How the result was made (set by the command; absent in files written before it existed).
+    #[serde(default)]
+    pub settings: Option<crate::settings::Settings>,
 }
 
 /// Runs `filter` over `data` and returns the summed log-likelihood.
@@ -134,6 +137,10 @@ impl CostFunction for Objective<'_> {
     type Output = f64;
 
     fn cost(&self, z: &Self::Param) -> std::result::Result<f64, argmin::core::Error> {
+        // A signal stops the search at the next evaluation (see `crate::interrupt`).
+        if crate::interrupt::requested() {
+            return Err(argmin::core::Error::msg(crate::interrupt::describe()));
+        }
         let ll = self.evaluate(z);
         if let Ok(mut trace) = self.trace.lock() {
             let evaluation = trace.len();
@@ -225,7 +232,12 @@ pub fn tune(
     let result = Executor::new(objective, solver)
         .configure(|state| state.max_iters(2000))
         .run()
-        .map_err(|e| Error::Run(format!("tune: optimiser: {e}")))?;
+        .map_err(
+            |e| match crate::interrupt::check(|| "during the search".into()) {
+                Err(stopped) => stopped,
+                Ok(()) => Error::Run(format!("tune: optimiser: {e}")),
+            },
+        )?;
     let state = result.state();
     let best = state
         .get_best_param()
@@ -236,6 +248,7 @@ pub fn tune(
         .evaluate(&best)
         .ok_or_else(|| Error::Run("tune: the filter fails at the optimum".into()))?;
     let std_errors = standard_errors(&objective, &best, best_ll);
+    crate::interrupt::check(|| "while estimating the standard errors".into())?;
     let trace = trace.into_inner().unwrap_or_default();
     Ok(Tuned {
         params: coords
@@ -251,6 +264,7 @@ pub fn tune(
         optimiser: "Nelder–Mead simplex (argmin)".into(),
         iterations,
         trace,
+        settings: None,
     })
 }
 

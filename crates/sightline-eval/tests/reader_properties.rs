@@ -33,6 +33,7 @@ fn read_checked(
         &schema(fallback),
         ReadOptions {
             nonfinite_as_missing,
+            ..ReadOptions::default()
         },
     )
     .and_then(|mut reader| {
@@ -178,6 +179,87 @@ proptest! {
             apply(&mut bytes, e);
         }
         read_checked(&bytes, false, lax)?;
+    }
+}
+
+/// The valid file's lines with `#` comment lines (and blank lines) inserted after the lines
+/// marked in `after` (index into the file's lines; `usize::MAX` for before the header).
+fn with_comments(after: &[(usize, bool)]) -> (String, Vec<u64>) {
+    let mut out = String::new();
+    let mut line_of = Vec::new();
+    let mut line = 1u64;
+    fn put(text: &str, out: &mut String, line: &mut u64) {
+        out.push_str(text);
+        out.push('\n');
+        *line += 1;
+    }
+    for (i, text) in std::iter::once("").chain(VALID.lines()).enumerate() {
+        for &(_, blank) in after.iter().filter(|(a, _)| *a == i) {
+            put(
+                if blank {
+                    ""
+                } else {
+                    "# logger note, with, commas"
+                },
+                &mut out,
+                &mut line,
+            );
+        }
+        if i > 0 {
+            line_of.push(line);
+            put(text, &mut out, &mut line);
+        }
+    }
+    (out, line_of)
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(300))]
+
+    /// Comment lines before the header and between rows (common practice for loggers) change
+    /// nothing read, and an error after them names the line it is on in the file.
+    #[test]
+    fn comment_lines_are_skipped_and_errors_keep_their_line(
+        after in prop::collection::vec((0usize..5, any::<bool>()), 0..8),
+        bad_row in 1usize..5,
+    ) {
+        let (text, line_of) = with_comments(&after);
+        let read = |text: &str| {
+            DatasetReader::from_reader(
+                Path::new("prop.csv"),
+                std::io::Cursor::new(text.as_bytes().to_vec()),
+                &schema(false),
+                ReadOptions::default(),
+            )
+            .and_then(|r| r.read_all())
+        };
+        let plain = read(VALID).unwrap();
+        // Compared as text: a missing measurement is NaN, which is never == itself.
+        prop_assert_eq!(
+            format!("{:?}", read(&text).unwrap().records),
+            format!("{:?}", plain.records)
+        );
+        // Spoil the measurement of data row `bad_row` (line `bad_row` of VALID, 0 = header).
+        let spoiled: String = text
+            .lines()
+            .enumerate()
+            .map(|(i, l)| {
+                if i as u64 + 1 == line_of[bad_row] {
+                    let mut cells: Vec<&str> = l.split(',').collect();
+                    cells[2] = "oops";
+                    cells.join(",")
+                } else {
+                    l.to_string()
+                }
+            })
+            .collect::<Vec<_>>()
+            .join("\n");
+        match read(&spoiled) {
+            Err(Error::Data { line, column, .. }) => {
+                prop_assert_eq!((line, column), (line_of[bad_row], 3));
+            }
+            other => prop_assert!(false, "expected a located error, got {:?}", other.map(|d| d.records.len())),
+        }
     }
 }
 

@@ -65,7 +65,7 @@ pub const GHKF: KindInfo = KindInfo {
         OptionInfo {
             key: "order",
             default: "3",
-            about: "points per axis; exact to degree 2p-1",
+            about: "points per axis, 2 to 20; exact to degree 2p-1",
         },
         REPAIR,
         FLOOR,
@@ -205,6 +205,14 @@ where
 {
     let o = spec.options(GHKF.options)?;
     let order = o.count("order", 3, 1, 20)?;
+    if order == 1 {
+        // The one-point rule is the mean alone: it propagates no spread, so the filter would
+        // never learn its own uncertainty (its covariance would only collect Q).
+        return Err(o.bad_value(
+            "order",
+            "a whole number from 2 to 20 (order 1 is a one-point rule: the mean alone, which              propagates no uncertainty through the model)",
+        ));
+    }
     let remedies = Remedies::from_options(&o, model.meas_dim().value())?;
     build_rule(
         model,

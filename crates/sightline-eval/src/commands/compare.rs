@@ -16,15 +16,17 @@ use std::path::{Path, PathBuf};
 
 use sightline_filters::FilterSpec;
 
-use crate::cli::{PlantArgs, configure};
-use crate::dataset::read::{DatasetReader, ReadOptions, RecordSource, Schema};
+use crate::cli::{DatasetArgs, PlantArgs, configure};
+use crate::dataset::read::{DatasetReader, RecordSource, Schema};
+use crate::dataset::time::Clock;
 use crate::error::{Error, Result};
-use crate::output::OutputDir;
+use crate::output::{Catching, OutputDir};
 use crate::plant::AnyPlant;
 use crate::report::{self, terminal_table};
 use crate::runner::{
     self, EstimatesWriter, NoObserver, Observer, RunConfig, RunOutcome, Series, Smoothing,
 };
+use crate::settings::Settings;
 use crate::summary::{self, FilterSummary, StateMap, Status, Summary};
 use crate::verdict;
 
@@ -33,16 +35,16 @@ use crate::verdict;
 pub struct CompareArgs {
     /// Plant and overrides.
     pub plant: PlantArgs,
-    /// Dataset.
+    /// Dataset (`-` for standard input).
     pub data: PathBuf,
+    /// How to read it.
+    pub dataset: DatasetArgs,
     /// Filter specs.
     pub filters: Vec<String>,
     /// Seed.
     pub seed: u64,
     /// Run smoothers.
     pub smooth: bool,
-    /// Treat non-finite cells as missing.
-    pub nonfinite_as_missing: bool,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -80,6 +82,22 @@ pub struct Comparison {
     /// With `--smooth`: the time of every row and each filter's smoothed track (`None` for a
     /// filter that has none), in spec order.
     pub smoothed: Option<SmoothedRun>,
+    /// The data's clock, for the plots' time axis.
+    pub clock: Clock,
+}
+
+/// What a command knows about a comparison beyond the run itself: recorded in `summary.json`
+/// and the report.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ResultContext {
+    /// The report's title.
+    pub title: String,
+    /// How the result was made.
+    pub settings: Option<Settings>,
+    /// The dataset's columns the model did not read.
+    pub ignored_columns: Vec<String>,
+    /// Notes for the report (how the data was read, filters skipped, ...).
+    pub notes: Vec<String>,
 }
 
 /// The smoothed tracks of a compared run.
@@ -87,6 +105,9 @@ pub struct Comparison {
 pub struct SmoothedRun {
     /// Time of every row.
     pub times: Vec<f64>,
+    /// The time cell of every row as written in the data (empty when the rows were not read
+    /// from text: `times` is written then).
+    pub time_texts: Vec<String>,
     /// Label and smoothed track of each filter, in spec order.
     pub tracks: Vec<(String, Option<sightline_filters::SmoothedTrack>)>,
 }
@@ -108,7 +129,12 @@ impl SmoothedRun {
                 let (Some(mean), Some(sd)) = (track.means.get(k), track.std_devs(k)) else {
                     continue;
                 };
-                let mut row = vec![label.clone(), t.to_string()];
+                let time = self
+                    .time_texts
+                    .get(k)
+                    .cloned()
+                    .unwrap_or_else(|| t.to_string());
+                let mut row = vec![label.clone(), time];
                 row.extend(mean.iter().chain(&sd).map(|v| v.to_string()));
                 csv.write_record(&row).map_err(fail)?;
             }
@@ -130,9 +156,13 @@ impl Comparison {
     /// The report page.
     pub fn report_html(&self, plant: &dyn AnyPlant, title: &str) -> Result<String> {
         let plots = match &self.series {
-            Some(s) => {
-                report::compare_plots(&self.summary, s, &plant.states(), &plant.measurements())
-            }
+            Some(s) => report::compare_plots(
+                &self.summary,
+                s,
+                &plant.states(),
+                &plant.measurements(),
+                &self.clock,
+            ),
             None => report::bar_plots(&self.summary),
         };
         let mut notes = self.notes.clone();
@@ -209,6 +239,8 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
         command: "compare".into(),
         model: plant.name().to_string(),
         steps: outcome.steps,
+        settings: None,
+        ignored_columns: Vec::new(),
         truth: outcome.truth,
         criteria: summary::criteria(outcome.truth, false),
         filters,
@@ -265,7 +297,7 @@ pub fn compare(
             runner::run(plant, filters, source, &config, observer)?
         }
     };
-    let mut notes = Vec::new();
+    let mut notes: Vec<String> = outcome.truth_problem.iter().cloned().collect();
     let smoothed = options
         .smooth
         .then(|| smoothing_notes(&outcome, &mut notes));
@@ -275,6 +307,7 @@ pub fn compare(
         series: outcome.series,
         notes,
         smoothed,
+        clock: source.clock(),
     })
 }
 
@@ -318,34 +351,41 @@ fn smoothing_notes(outcome: &RunOutcome, notes: &mut Vec<String>) -> SmoothedRun
     }
     SmoothedRun {
         times: outcome.times.clone(),
+        time_texts: outcome.time_texts.clone(),
         tracks,
     }
 }
 
 /// Writes `estimates.csv` (through `write_estimates`), `summary.json` and `report.html` into a
-/// fresh output directory committed atomically onto `output`, prints the table and the verdict
-/// and returns the comparison.
+/// fresh output directory committed atomically onto `output`, with the `context` (title,
+/// settings, ignored columns, notes) in the summary and the report and, with `more`, any
+/// further files the caller writes into it first (e.g. demo's `data.csv`); returns the
+/// comparison.
 pub fn compare_to_dir(
     plant: &dyn AnyPlant,
     specs: &[FilterSpec],
     source: &mut dyn RecordSource,
     options: &CompareOptions,
     output: &Path,
-    title: &str,
+    context: ResultContext,
+    more: &dyn Fn(&OutputDir) -> Result<()>,
 ) -> Result<(Comparison, PathBuf)> {
     let dir = OutputDir::new(output)?;
-    let estimates_path = dir.path("estimates.csv");
-    let file = File::create(&estimates_path).map_err(|source| Error::Write {
+    // Messages name the file where it will be, not the temporary directory.
+    let estimates_path = dir.target().join("estimates.csv");
+    let file = File::create(dir.path("estimates.csv")).map_err(|source| Error::Write {
         path: estimates_path.clone(),
         source,
     })?;
-    let mut buffered = BufWriter::with_capacity(1 << 16, file);
-    let comparison = compare(plant, specs, source, options, Some(&mut buffered))?;
-    buffered.flush().map_err(|source| Error::Write {
-        path: estimates_path.clone(),
-        source,
-    })?;
-    drop(buffered);
+    let mut buffered = Catching::new(BufWriter::with_capacity(1 << 16, file));
+    let mut comparison = compare(plant, specs, source, options, Some(&mut buffered))
+        .map_err(|e| buffered.explain(e, &estimates_path))?;
+    buffered.finish(&estimates_path)?;
+    comparison.summary.settings = context.settings;
+    comparison.summary.ignored_columns = context.ignored_columns;
+    let mut notes = context.notes;
+    notes.append(&mut comparison.notes);
+    comparison.notes = notes;
     if let Some(smoothed) = &comparison.smoothed {
         let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
         dir.write("smoothed.csv", |w| smoothed.write_csv(w, &states))?;
@@ -359,13 +399,14 @@ pub fn compare_to_dir(
                 source,
             })
     })?;
-    let html = comparison.report_html(plant, title)?;
+    let html = comparison.report_html(plant, &context.title)?;
     dir.write("report.html", |w| {
         w.write_all(html.as_bytes()).map_err(|source| Error::Write {
             path: PathBuf::from("report.html"),
             source,
         })
     })?;
+    more(&dir)?;
     let target = dir.commit()?;
     Ok((comparison, target))
 }
@@ -400,38 +441,80 @@ pub fn failures_error(summary: &Summary) -> Option<Error> {
     })
 }
 
+/// Opens the dataset of a command: `path` (`-` for standard input) read with `dataset`'s flags,
+/// its time base checked against `plant` (see [`DatasetReader::check_time_base`]). Prints the
+/// reader's warnings and notes on stderr and returns them for the report.
+pub fn open_dataset(
+    plant: &dyn AnyPlant,
+    plant_args: &PlantArgs,
+    path: &Path,
+    dataset: &DatasetArgs,
+) -> Result<(DatasetReader, Vec<String>)> {
+    let schema = Schema::of(plant, &plant_args.set_input_names());
+    let mut reader = DatasetReader::open(path, &schema, dataset.read_options()?)?;
+    let mut messages = reader.messages();
+    if let Some(note) = reader.check_time_base(plant, dataset.accept_dt)? {
+        messages.push(format!("note: {note}"));
+    }
+    for m in &messages {
+        eprintln!("{m}");
+    }
+    let notes = messages
+        .iter()
+        .map(|m| {
+            m.strip_prefix("warning: ")
+                .or_else(|| m.strip_prefix("note: "))
+                .unwrap_or(m)
+                .to_string()
+        })
+        .collect();
+    Ok((reader, notes))
+}
+
 /// Runs `compare`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
+    crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
     let plant = configure(plants, &args.plant)?;
-    let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
-    // Build once before reading so that a bad spec is reported before any work.
-    runner::build_filters(plant.as_ref(), &specs, args.seed)?;
-    let schema = Schema::of(plant.as_ref(), &args.plant.set_input_names());
-    let mut reader = DatasetReader::open(
-        &args.data,
-        &schema,
-        ReadOptions {
-            nonfinite_as_missing: args.nonfinite_as_missing,
-        },
-    )?;
+    // Built once before reading so that a bad spec is reported before any work.
+    let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
+    let (mut reader, mut notes) =
+        open_dataset(plant.as_ref(), &args.plant, &args.data, &args.dataset)?;
+    if let Some(note) = skipped {
+        eprintln!("note: {note}");
+        notes.push(note);
+    }
     let options = CompareOptions {
         seed: args.seed,
         smooth: args.smooth,
         ..CompareOptions::default()
     };
-    let title = format!(
-        "Sightline: {} filters on {} ({})",
-        specs.len(),
-        plant.name(),
-        args.data.display()
-    );
+    let settings = Settings {
+        filters: specs.iter().map(|s| s.label.clone()).collect(),
+        data: Some(args.data.display().to_string()),
+        dataset: Some(args.dataset.settings()),
+        smooth: Some(args.smooth),
+        ..Settings::new("compare", plant.as_ref(), &args.plant.set, args.seed)
+    };
+    let shown_already = notes.len();
+    let context = ResultContext {
+        title: format!(
+            "Sightline: {} filters on {} ({})",
+            specs.len(),
+            plant.name(),
+            args.data.display()
+        ),
+        settings: Some(settings),
+        ignored_columns: reader.ignored_columns(),
+        notes,
+    };
     let (comparison, dir) = compare_to_dir(
         plant.as_ref(),
         &specs,
         &mut reader,
         &options,
         &args.output,
-        &title,
+        context,
+        &|_| Ok(()),
     )
     .map_err(|e| match e {
         Error::Interrupted(m) => Error::Interrupted(format!(
@@ -440,7 +523,9 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         )),
         other => other,
     })?;
-    print_result(&comparison.summary, &dir, &comparison.notes);
+    // The reader's and the filter set's notes went to stderr as they arose.
+    let notes = comparison.notes.get(shown_already..).unwrap_or(&[]);
+    print_result(&comparison.summary, &dir, notes);
     match failures_error(&comparison.summary) {
         Some(e) => Err(e),
         None => Ok(()),

@@ -11,11 +11,14 @@ use std::path::{Path, PathBuf};
 
 use sightline_filters::FilterSpec;
 
-use crate::commands::compare::{CompareOptions, compare_to_dir, failures_error, print_result};
+use crate::commands::compare::{
+    CompareOptions, ResultContext, compare_to_dir, failures_error, print_result,
+};
 use crate::dataset::read::MemorySource;
 use crate::dataset::write::write_csv;
 use crate::error::{Error, Result};
 use crate::plant::AnyPlant;
+use crate::settings::{DatasetSettings, Settings};
 use crate::simulate::SimOptions;
 
 /// A demo scenario: a plant, its settings, a simulated dataset with a sensor outage, and the
@@ -115,24 +118,42 @@ pub fn run(plants: &[Box<dyn AnyPlant>], output: &Path) -> Result<()> {
         seed: scenario.seed,
         ..CompareOptions::default()
     };
-    let title = format!("Sightline demo: {} with a sensor outage", scenario.model);
+    // The demo's result reruns as a `compare` of the data.csv it keeps beside it.
+    let sets: Vec<String> = scenario
+        .set
+        .iter()
+        .map(|(n, v)| format!("{n}={v}"))
+        .collect();
+    let settings = Settings {
+        filters: specs.iter().map(|s| s.label.clone()).collect(),
+        data: Some("data.csv".into()),
+        dataset: Some(DatasetSettings {
+            time: "t".into(),
+            time_unit: "s".into(),
+            ..DatasetSettings::default()
+        }),
+        smooth: Some(false),
+        ..Settings::new("compare", plant.as_ref(), &sets, scenario.seed)
+    };
+    let context = ResultContext {
+        title: format!("Sightline demo: {} with a sensor outage", scenario.model),
+        settings: Some(settings),
+        ..ResultContext::default()
+    };
     let (comparison, dir) = compare_to_dir(
         plant.as_ref(),
         &specs,
         &mut MemorySource::new(&data),
         &options,
         output,
-        &title,
+        context,
+        // Keep the dataset beside the results (and in the manifest) so the comparison can be
+        // rerun by hand.
+        &|dir| dir.write("data.csv", |w| write_csv(&data, w)),
     )?;
-    // Keep the dataset beside the results so the comparison can be rerun by hand.
     let data_path: PathBuf = dir.join("data.csv");
-    crate::output::write_file(&data_path, |w| write_csv(&data, w))?;
     print_result(&comparison.summary, &dir, &comparison.notes);
-    let sets: String = scenario
-        .set
-        .iter()
-        .map(|(n, v)| format!(" --set {n}={v}"))
-        .collect();
+    let sets: String = sets.iter().map(|s| format!(" --set {s}")).collect();
     println!(
         "data: {} (rerun: sightline compare {}{sets} {} -o DIR)",
         data_path.display(),

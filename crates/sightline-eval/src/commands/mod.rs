@@ -30,20 +30,20 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
         Command::Compare {
             plant,
             data,
+            dataset,
             filters,
             seed,
             smooth,
-            nonfinite_as_missing,
             output,
         } => compare::run(
             plants,
             &compare::CompareArgs {
                 plant,
                 data,
+                dataset,
                 filters,
                 seed,
                 smooth,
-                nonfinite_as_missing,
                 output,
             },
         ),
@@ -54,6 +54,8 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
             filters,
             seed,
             shard,
+            every,
+            dropout,
             output,
         } => montecarlo::run(
             plants,
@@ -64,6 +66,8 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 filters,
                 seed,
                 shard,
+                every,
+                dropout,
                 output,
             },
         ),
@@ -71,10 +75,23 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
         Command::Tune {
             plant,
             data,
+            dataset,
             filter,
             params,
+            seed,
             output,
-        } => tune::run(plants, &plant, &data, &filter, &params, &output),
+        } => tune::run(
+            plants,
+            &tune::TuneArgs {
+                plant,
+                data,
+                dataset,
+                filter,
+                params,
+                seed,
+                output,
+            },
+        ),
         Command::Demo { output } => demo::run(plants, &output),
     }
 }

@@ -2,20 +2,22 @@
 //! `DIR/partial.json` (the exact totals `merge` combines) and `DIR/report.html`.
 //!
 //! The library calls are [`crate::campaign::run_campaign`] and [`crate::campaign::summarise`];
-//! [`write_campaign`] writes a campaign's outputs. A campaign stopped early (Ctrl-C or a
-//! failed simulation) keeps its finished runs in `DIR.checkpoint/`; the same command resumes
-//! from it ([`crate::checkpoint`]).
+//! [`write_campaign`] writes a campaign's outputs. A running campaign keeps its finished runs
+//! in `DIR.checkpoint/` as they finish; the same command resumes from it after a signal, a
+//! failure or a kill, and a larger `--runs` extends a campaign ([`crate::checkpoint`]).
 
+use std::ops::Range;
 use std::path::{Path, PathBuf};
 
 use crate::campaign::{self, CampaignSpec, Shard, Totals};
 use crate::checkpoint::Checkpoint;
 use crate::cli::{PlantArgs, configure};
 use crate::error::{Error, Result};
-use crate::output::OutputDir;
+use crate::output::{self, OutputDir};
 use crate::plant::AnyPlant;
 use crate::report::{self, Area, Line, LinePlot, Plot, colour};
 use crate::runner;
+use crate::settings::Settings;
 use crate::summary::Summary;
 
 /// Arguments of `montecarlo`.
@@ -33,6 +35,10 @@ pub struct CampaignArgs {
     pub seed: u64,
     /// Shard K/N.
     pub shard: Option<String>,
+    /// Keep a measurement every K rows.
+    pub every: usize,
+    /// Drop each measurement component with this probability.
+    pub dropout: f64,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -62,6 +68,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        clock: None,
         caption: "Average over the runs of each step's NEES; a consistent filter keeps about 95 % \
                   of the steps inside the band (Bar-Shalom et al. 2001, §5.4)."
             .into(),
@@ -84,6 +91,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        clock: None,
         caption: "Average over the runs of each step's NIS against the band of an average of \
                   M χ²(m) values."
             .into(),
@@ -136,9 +144,7 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
     let summary = campaign::summarise(totals);
     let dir = OutputDir::new(output)?;
     write_json(&dir, "summary.json", &summary.to_json())?;
-    let partial = serde_json::to_string(totals)
-        .map_err(|e| Error::Run(format!("encoding partial.json: {e}")))?;
-    write_json(&dir, "partial.json", &partial)?;
+    write_json(&dir, "partial.json", &crate::partial::to_json(totals)?)?;
     let mut notes = Vec::new();
     if !totals.complete() {
         notes.push(format!(
@@ -153,9 +159,15 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
             totals.campaign.runs
         ));
     }
+    let (every, dropout) = (totals.campaign.every, totals.campaign.dropout);
+    let sparse = if every == 1 && dropout == 0.0 {
+        String::new()
+    } else {
+        format!(" --every {every} --dropout {dropout}")
+    };
     notes.push(format!(
-        "Run i uses seed derive_seed({}, [i]); `sightline simulate {} --steps {} --seed <that seed>` \
-         and `sightline compare ... --seed <that seed>` reproduce it alone.",
+        "Run i uses seed derive_seed({}, [i]); `sightline simulate {} --steps {}{sparse} --seed \
+         <that seed>` and `sightline compare ... --seed <that seed>` reproduce it alone.",
         totals.campaign.seed, totals.campaign.model, totals.campaign.steps
     ));
     let title = format!(
@@ -192,10 +204,14 @@ pub fn finish(summary: &Summary, dir: &Path) -> Result<()> {
     Ok(())
 }
 
-/// Runs `montecarlo`.
+/// Runs `montecarlo`. Every check — the output directory, the checkpoint beside it, whether it
+/// resumes or extends — comes before the first run; nothing is touched if one fails.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
     let plant = configure(plants, &args.plant)?;
-    let specs = runner::parse_specs(plant.as_ref(), &args.filters)?;
+    let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
+    if let Some(note) = &skipped {
+        eprintln!("note: {note}");
+    }
     let shard = args.shard.as_deref().map(Shard::parse).transpose()?;
     let spec = CampaignSpec {
         model: plant.name().to_string(),
@@ -204,12 +220,20 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
         steps: args.steps as u64,
         seed: args.seed,
         filters: specs.iter().map(|s| s.label.clone()).collect(),
+        every: args.every,
+        dropout: args.dropout,
     };
     let range = match shard {
         Some(s) => s.range(spec.runs),
         None => 0..spec.runs,
     };
-    let fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
+    let mut fresh = campaign::empty_totals(plant.as_ref(), &specs, &spec)?;
+    fresh.settings = Some(Settings {
+        model_description: plant.description().to_string(),
+        ..Settings::of_campaign(&spec, None)
+    });
+    fresh.set_shard(shard);
+    let checked = output::check_dir(&args.output)?;
     let mut checkpoint = Checkpoint::beside(&args.output);
     let mut totals = match checkpoint.load(&fresh, &range)? {
         Some(saved) => {
@@ -221,11 +245,39 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
             );
             saved
         }
-        None => fresh,
+        None => match extension_of(&checked, &fresh, &range) {
+            Some(done) => {
+                eprintln!(
+                    "extending {}: {} of {} runs already done there",
+                    args.output.display(),
+                    done.runs_covered(),
+                    range.end - range.start
+                );
+                done
+            }
+            None => fresh,
+        },
     };
+    if range.is_empty() {
+        eprintln!(
+            "note: shard {} of a {}-run campaign holds no run (there are more shards than \
+             runs); its output only completes the set for `sightline merge`",
+            args.shard.as_deref().unwrap_or("?"),
+            spec.runs
+        );
+    }
+    checkpoint.pace(range.end - range.start, totals.runs_covered());
     let todo = campaign::uncovered(&totals, range.clone());
+    let mut warned = false;
     let outcome = campaign::run_ranges(plant.as_ref(), &specs, &todo, &mut totals, &mut |t| {
-        checkpoint.save_if_due(t)
+        // A checkpoint that cannot be written costs only crash safety: say so once, go on.
+        if let Err(e) = checkpoint.save_if_due(t) {
+            if !warned {
+                eprintln!("warning: the checkpoint could not be saved ({e}); the campaign goes on");
+                warned = true;
+            }
+        }
+        Ok(())
     });
     if let Err(e) = outcome {
         return Err(stopped_early(
@@ -236,18 +288,45 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
             &args.output,
         ));
     }
-    let (summary, dir) = write_campaign(&totals, &args.output)?;
+    let (summary, dir) = match write_campaign(&totals, &args.output) {
+        Ok(done) => done,
+        // E.g. a file added to the old output meanwhile: keep the finished runs.
+        Err(e) => {
+            return Err(stopped_early(
+                e,
+                &totals,
+                &mut checkpoint,
+                &range,
+                &args.output,
+            ));
+        }
+    };
     checkpoint.remove();
     finish(&summary, &dir)
 }
 
-/// The error of a campaign that stopped early (Ctrl-C or a failure): the finished runs are
-/// saved in the checkpoint and the message says how to resume.
+/// The finished output at the target as the start of a campaign that grows `--runs` (the same
+/// campaign otherwise), or `None`: an earlier output of another campaign is simply replaced.
+fn extension_of(checked: &output::Checked, fresh: &Totals, range: &Range<u64>) -> Option<Totals> {
+    let output::Found::Output(manifest) = &checked.found else {
+        return None;
+    };
+    manifest.files.iter().find(|f| f.name == "partial.json")?;
+    let file = checked.target.join("partial.json");
+    let done = crate::partial::read(&file).ok()?;
+    if done.campaign.runs >= fresh.campaign.runs {
+        return None;
+    }
+    crate::checkpoint::adopt(done, fresh, range, &file, &checked.target).ok()
+}
+
+/// The error of a campaign that stopped early (a signal, a failure, an output that cannot be
+/// written): the finished runs are saved in the checkpoint and the message says how to resume.
 fn stopped_early(
     error: Error,
     totals: &Totals,
     checkpoint: &mut Checkpoint,
-    range: &std::ops::Range<u64>,
+    range: &Range<u64>,
     output: &Path,
 ) -> Error {
     let done = totals.runs_covered();
@@ -270,8 +349,14 @@ fn stopped_early(
     };
     match error {
         // The row a run was stopped at says nothing useful about a campaign.
-        Error::Interrupted(_) => Error::Interrupted(format!("interrupted (Ctrl-C): {kept}")),
+        Error::Interrupted(_) => {
+            Error::Interrupted(format!("{}: {kept}", crate::interrupt::describe()))
+        }
         Error::Run(m) => Error::Run(format!("{m}; {kept}")),
+        Error::Usage(m) => Error::Usage(format!("{m}; {kept}")),
+        Error::Write { path, source } => {
+            Error::Usage(format!("cannot write {}: {source}; {kept}", path.display()))
+        }
         other => other,
     }
 }

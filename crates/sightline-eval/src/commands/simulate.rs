@@ -1,4 +1,5 @@
-//! `sightline simulate`: a dataset with ground truth, written atomically.
+//! `sightline simulate`: a dataset with ground truth, written atomically to a file or streamed
+//! into standard output (`-o -`), a FIFO or a character device ([`crate::output::FileTarget`]).
 
 use std::path::Path;
 
@@ -6,12 +7,13 @@ use crate::cli::{PlantArgs, configure};
 use crate::dataset::Layout;
 use crate::dataset::write::CsvRecordWriter;
 use crate::error::{Error, Result};
-use crate::output::write_file;
+use crate::output::FileTarget;
 use crate::plant::AnyPlant;
 use crate::simulate::SimOptions;
 
 /// Runs `simulate`: the rows stream into a temporary file beside `output`, renamed onto it only
-/// when the simulation is complete (an error or Ctrl-C leaves no partial file).
+/// when the simulation is complete (an error or a signal leaves no partial file and an earlier
+/// file intact), or straight into a stream.
 #[allow(clippy::too_many_arguments)]
 pub fn run(
     plants: &[Box<dyn AnyPlant>],
@@ -39,21 +41,28 @@ pub fn run(
         measurements: plant.measurements().into_iter().map(|v| v.name).collect(),
         states: plant.states().into_iter().map(|v| v.name).collect(),
     };
+    let target = FileTarget::check(output)?;
     let mut rows = 0u64;
-    write_file(output, |w| {
-        let mut writer = CsvRecordWriter::new(w, &layout)?;
-        plant.simulate_each(steps, seed, &options, &mut |record| {
-            rows += 1;
-            writer.write(record)
+    target
+        .write(output, |w| {
+            let mut writer = CsvRecordWriter::new(w, &layout)?;
+            plant.simulate_each(steps, seed, &options, &mut |record| {
+                rows += 1;
+                writer.write(record)
+            })?;
+            writer.finish()
+        })
+        .map_err(|e| match e {
+            Error::Interrupted(m) if target.streams() => Error::Interrupted(format!(
+                "{m}; the rows before it were streamed to {}",
+                output.display()
+            )),
+            Error::Interrupted(m) => Error::Interrupted(format!(
+                "{m}; {} was not written (an earlier file there is unchanged)",
+                output.display()
+            )),
+            other => other,
         })?;
-        writer.finish()
-    })
-    .map_err(|e| match e {
-        Error::Interrupted(m) => {
-            Error::Interrupted(format!("{m}; {} was not written", output.display()))
-        }
-        other => other,
-    })?;
     eprintln!(
         "wrote {rows} rows of '{}' to {}",
         plant.name(),

@@ -2,45 +2,75 @@
 //! values of the named parameters for one filter on one dataset, written to `DIR/tuned.json`
 //! (see [`crate::tune`]).
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use comfy_table::{Table, presets::UTF8_FULL_CONDENSED};
 use sightline_filters::FilterSpec;
 
-use crate::cli::{PlantArgs, configure};
-use crate::dataset::read::{DatasetReader, ReadOptions, Schema};
+use crate::cli::{DatasetArgs, PlantArgs, configure};
+use crate::commands::compare::open_dataset;
 use crate::error::{Error, Result};
 use crate::output::OutputDir;
 use crate::plant::AnyPlant;
 use crate::runner::filter_seed;
+use crate::settings::Settings;
 use crate::tune::{Tuned, tune};
 
+/// Arguments of `tune`.
+#[derive(Debug, Clone)]
+pub struct TuneArgs {
+    /// Plant and overrides.
+    pub plant: PlantArgs,
+    /// Dataset (`-` for standard input).
+    pub data: PathBuf,
+    /// How to read it.
+    pub dataset: DatasetArgs,
+    /// Filter spec whose likelihood is maximised.
+    pub filter: String,
+    /// Parameters to tune.
+    pub params: Vec<String>,
+    /// Seed (the filter's own seed is derived from it and its label, as in `compare`).
+    pub seed: u64,
+    /// Output directory.
+    pub output: PathBuf,
+}
+
 /// Runs `tune`.
-pub fn run(
-    plants: &[Box<dyn AnyPlant>],
-    args: &PlantArgs,
-    data: &Path,
-    filter: &str,
-    params: &[String],
-    output: &Path,
-) -> Result<()> {
-    let plant = configure(plants, args)?;
-    let spec = FilterSpec::parse(filter)?;
-    // The same seed `compare` gives this label by default, so the likelihoods agree.
-    let seed = filter_seed(0, &spec.label);
+pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
+    crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
+    let plant = configure(plants, &args.plant)?;
+    let spec = FilterSpec::parse(&args.filter)?;
+    // The same seed `compare --seed S` gives this label, so the likelihoods agree.
+    let seed = filter_seed(args.seed, &spec.label);
     plant.build_filter(&spec, seed)?;
-    let schema = Schema::of(plant.as_ref(), &args.set_input_names());
-    let dataset = DatasetReader::open(data, &schema, ReadOptions::default())?.read_all()?;
+    let (reader, _notes) = open_dataset(plant.as_ref(), &args.plant, &args.data, &args.dataset)?;
+    let dataset = reader.read_all()?;
     if dataset.records.is_empty() {
         return Err(Error::data(
-            data,
+            &args.data,
             2,
             1,
             "the dataset has a header but no rows",
         ));
     }
-    let tuned = tune(plant.as_ref(), &dataset, &spec, params, seed)?;
-    let dir = OutputDir::new(output)?;
+    // The output is checked before the (long) search, and again when it is put in place.
+    crate::output::check_dir(&args.output)?;
+    let mut tuned =
+        tune(plant.as_ref(), &dataset, &spec, &args.params, seed).map_err(|e| match e {
+            Error::Interrupted(m) => Error::Interrupted(format!(
+                "{m}; nothing was written to {}",
+                args.output.display()
+            )),
+            other => other,
+        })?;
+    tuned.settings = Some(Settings {
+        filters: vec![spec.label.clone()],
+        data: Some(args.data.display().to_string()),
+        dataset: Some(args.dataset.settings()),
+        params: Some(args.params.clone()),
+        ..Settings::new("tune", plant.as_ref(), &args.plant.set, args.seed)
+    });
+    let dir = OutputDir::new(&args.output)?;
     let json = serde_json::to_string_pretty(&tuned)
         .map_err(|e| Error::Run(format!("encoding tuned.json: {e}")))?;
     dir.write("tuned.json", |w| {
@@ -50,7 +80,7 @@ pub fn run(
         })
     })?;
     let target = dir.commit()?;
-    print!("{}", describe(&tuned, plant.name(), &args.set));
+    print!("{}", describe(&tuned, plant.name(), &args.plant.set));
     println!("written: {}", target.join("tuned.json").display());
     Ok(())
 }

@@ -1,11 +1,14 @@
-//! Datasets in the contract's CSV layout: a header row; `t` (seconds, strictly increasing);
-//! `u.<input>`, `y.<measurement>` and optional `x.<state>` (truth) columns in any order; an empty
-//! `y.` cell is a missing measurement.
+//! Datasets in the contract's CSV layout: a header row; a time column `t` (numbers in seconds or
+//! another unit, or RFC 3339 date-times; strictly increasing); `u.<input>`, `y.<measurement>` and
+//! optional `x.<state>` (truth) columns in any order; an empty `y.` cell is a missing
+//! measurement. Real logs are read as they are: see [`read`] for renamed and extra columns,
+//! missing-value tokens, comment lines and standard input, and [`time`] for the time column.
 //!
 //! In memory a dataset is a [`Layout`] and a list of [`Record`]s; large files are read as a
 //! stream of records so that filtering never holds the whole file.
 
 pub mod read;
+pub mod time;
 pub mod write;
 
 /// Column names of a dataset, in model order (without the `u.`/`y.`/`x.` prefixes).
@@ -22,7 +25,7 @@ pub struct Layout {
 /// One row: time, inputs, measurements (NaN = missing) and, when known, the true state.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Record {
-    /// Time (s).
+    /// Time in seconds since the first row, whatever the data's clock (see [`time`]).
     pub t: f64,
     /// Inputs in model order.
     pub u: Vec<f64>,
