@@ -217,3 +217,29 @@ fn models_lists_every_plant_with_parameters_defaults_and_units() {
     assert!(text.contains("7.2e10"), "{text}");
     assert!(text.contains("cm^3/(V s)"), "{text}");
 }
+
+#[test]
+fn a_reader_that_stops_early_ends_the_stream_quietly_with_the_sigpipe_code() {
+    // `simulate -o - | head -n 2`: the reader closes the pipe after two lines. A program that
+    // writes into a closed pipe ends as if by SIGPIPE (exit 128 + 13 = 141), silently — what
+    // the shell and `yes | head` do (common practice); an "error: Broken pipe" with exit 2 would
+    // call the user's pipeline broken.
+    use std::io::{BufRead, BufReader};
+    use std::process::Stdio;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_sightline"))
+        .args([
+            "simulate", "cv", "--steps", "2000000", "--seed", "3", "-o", "-",
+        ])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut reader = BufReader::new(child.stdout.take().unwrap());
+    let mut header = String::new();
+    reader.read_line(&mut header).unwrap();
+    assert!(header.starts_with("t,"), "{header}");
+    drop(reader);
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(141), "{}", stderr(&out));
+    assert_eq!(stderr(&out), "");
+}

@@ -370,6 +370,14 @@ pub fn main_with(plants: Vec<Box<dyn AnyPlant>>) -> ExitCode {
     crate::interrupt::install();
     match run(std::env::args_os(), &plants) {
         Ok(()) => ExitCode::SUCCESS,
+        // The reader of standard output went away (`| head`): what it read is all it wanted,
+        // so no message, only the SIGPIPE exit code a shell pipeline expects.
+        Err(e)
+            if e.is_broken_pipe()
+                && matches!(&e, Error::Write { path, .. } if path.as_os_str() == "-") =>
+        {
+            ExitCode::from(e.exit_code())
+        }
         Err(e) => {
             let text = e.to_string();
             let text = text.trim_end();

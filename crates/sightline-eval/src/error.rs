@@ -1,5 +1,6 @@
 //! The evaluation crate's error type and its exit codes (0 success, 1 a run failed, 2 bad input
-//! or an output that cannot be written, 128 + n stopped by signal n).
+//! or an output that cannot be written, 128 + n stopped by signal n; a stream whose reader went
+//! away counts as stopped by SIGPIPE, 141).
 
 use std::path::PathBuf;
 
@@ -60,7 +61,14 @@ pub enum Error {
 impl Error {
     /// Process exit code for this error: 2 for bad input, usage or an unwritable output, 1 for
     /// a failed run, 128 + n for one stopped by signal n.
+    ///
+    /// A write into a pipe or FIFO whose reader has gone (`sightline simulate -o - | head`)
+    /// exits 141 = 128 + SIGPIPE, the code a program stopped by that signal has (common
+    /// practice: the Rust runtime ignores SIGPIPE, so the write fails with EPIPE instead).
     pub fn exit_code(&self) -> u8 {
+        if self.is_broken_pipe() {
+            return 128 + 13;
+        }
         match self {
             Error::Usage(_)
             | Error::Param(_)
@@ -71,6 +79,12 @@ impl Error {
             Error::Run(_) => 1,
             Error::Interrupted(_) => crate::interrupt::exit_code(),
         }
+    }
+
+    /// Whether this is a write into a pipe whose reader has closed it: the reader chose to stop
+    /// (`| head`), so the command stops quietly, like a program ended by SIGPIPE.
+    pub fn is_broken_pipe(&self) -> bool {
+        matches!(self, Error::Write { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe)
     }
 
     /// A located dataset error.
