@@ -20,8 +20,8 @@ use std::hint::black_box;
 use sightline::core::Alloc;
 use sightline::eval::dataset::Dataset;
 use sightline::eval::simulate::SimOptions;
-use sightline::filters::linearise::transition_jacobian;
 use sightline::filters::JacobianSource;
+use sightline::filters::linearise::transition_jacobian;
 use sightline::models::{Pendulum, QuadTank};
 use sightline::nalgebra::DefaultAllocator;
 use sightline::{AnyPlant, Filter, FilterSpec, Model, shipped};
@@ -67,13 +67,21 @@ where
     let declaration = model.declare();
     let (u, dt) = (declaration.default_input(), declaration.dt());
     for _ in 0..count {
-        black_box(transition_jacobian(model, black_box(&x), u, 0.0, dt, source));
+        black_box(transition_jacobian(
+            model,
+            black_box(&x),
+            u,
+            0.0,
+            dt,
+            source,
+        ));
     }
 }
 
 fn main() -> Result<(), Box<dyn Error>> {
     let args: Vec<String> = std::env::args().skip(1).collect();
-    let usage = "usage: step_counts step PLANT SPEC STEPS | step_counts jacobian PLANT model|ad COUNT";
+    let usage =
+        "usage: step_counts step PLANT SPEC STEPS | step_counts jacobian PLANT model|ad COUNT";
     let [kind, plant_name, what, count] = [0, 1, 2, 3].map(|i| args.get(i).cloned());
     let (Some(kind), Some(plant_name), Some(what), Some(count)) = (kind, plant_name, what, count)
     else {
