@@ -8,10 +8,15 @@ the median time of each benchmark (criterion's point estimate of the median samp
 cost of every filter on every plant, the EKF with AD against hand-written Jacobians, and the
 particle filter against particle count, thread count and its own bare arithmetic. Standard
 library only.
+
+`--baselines BEFORE AFTER` instead compares two saved baselines (`cargo bench --bench
+filter_step -- --save-baseline NAME`, e.g. the same bench built from two commits and run
+against one `CRITERION_HOME`) and prints each median of both with their ratio.
 """
 
 import argparse
 import json
+import math
 import os
 from pathlib import Path
 
@@ -22,10 +27,10 @@ PLANTS = ["pendulum", "quadtank", "tracking", "tankchain-8", "tankchain-16", "ta
 COUNTS = ["1000", "10000", "100000", "1000000"]
 
 
-def load(criterion_dir):
+def load(criterion_dir, baseline="new"):
     medians = {}
     for dirpath, _, files in os.walk(criterion_dir):
-        if Path(dirpath).name != "new" or "benchmark.json" not in files:
+        if Path(dirpath).name != baseline or "benchmark.json" not in files:
             continue
         bench = json.loads((Path(dirpath) / "benchmark.json").read_text())
         est = json.loads((Path(dirpath) / "estimates.json").read_text())
@@ -48,11 +53,33 @@ def table(header, rows):
     return "\n".join(lines)
 
 
+def compare(criterion_dir, before, after):
+    """Markdown table of the medians of two baselines and their ratio, with the geometric mean."""
+    old, new = load(criterion_dir, before), load(criterion_dir, after)
+    rows, logs = [], []
+    for name in sorted(set(old) & set(new)):
+        ratio = new[name] / old[name]
+        logs.append(math.log(ratio))
+        rows.append([name, human(old[name]), human(new[name]), f"{ratio:.3f}"])
+    text = table(["benchmark", before, after, f"{after} / {before}"], rows)
+    if logs:
+        text += (f"\n\n{len(logs)} medians: geometric mean {math.exp(sum(logs) / len(logs)):.3f}, "
+                 f"min {math.exp(min(logs)):.3f}, max {math.exp(max(logs)):.3f}")
+    return text + "\n"
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--criterion", type=Path, default=ROOT / "target" / "criterion")
     ap.add_argument("-o", "--output", type=Path, default=None)
+    ap.add_argument("--baselines", nargs=2, metavar=("BEFORE", "AFTER"))
     a = ap.parse_args()
+    if a.baselines:
+        text = compare(a.criterion, *a.baselines)
+        print(text)
+        if a.output:
+            a.output.write_text(text)
+        return
     m = load(a.criterion)
     out = []
 

@@ -56,6 +56,10 @@ impl Model for Pendulum {
     }
 
     /// θ̈ = −(g/L) sin θ − damping·θ̇ + torque.
+    // Inlined into the RK4 stages: out of line, the dual sin θ loses its fused sincos (num-dual
+    // computes cos θ only where the derivative part is present, and LLVM fuses the two libm
+    // calls only in one basic block), measured +5 % instructions on the AD step.
+    #[inline]
     fn derivative<S: Real>(&self, x: &Vector2<S>, u: &[f64], _t: f64) -> Vector2<S> {
         let torque = u[0];
         Vector2::new(

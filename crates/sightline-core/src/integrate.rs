@@ -27,6 +27,9 @@ use crate::real::Real;
 /// assert!((x[0] - r.powi(20)).abs() < 1e-15);
 /// assert!((x[0] - (-1.0f64).exp()).abs() < 3e-8);
 /// ```
+// Inlined so that a constant `substeps` (one step, the default) folds into the caller and the
+// right-hand side inlines into the stages.
+#[inline]
 pub fn rk4<S, N, F>(f: F, x: &OVector<S, N>, t0: f64, dt: f64, substeps: usize) -> OVector<S, N>
 where
     S: Real,
@@ -78,6 +81,7 @@ pub enum Integrator {
 
 impl Default for Integrator {
     /// One RK4 step per sample.
+    #[inline]
     fn default() -> Self {
         Integrator::Rk4 { substeps: 1 }
     }

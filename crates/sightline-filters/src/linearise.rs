@@ -64,6 +64,9 @@ pub enum JacobianSource {
 }
 
 /// `f(x)` and `∂f/∂x` at `x`.
+// A dispatch small enough to inline into the filter step, so the hand-written Jacobian
+// and the transition beside it are optimised together.
+#[inline]
 pub fn transition_jacobian<M: Model>(
     model: &M,
     x: &OVector<f64, M::State>,
@@ -84,6 +87,7 @@ where
 }
 
 /// `h(x)` and `∂h/∂x` at `x`.
+#[inline]
 pub fn measurement_jacobian<M: Model>(
     model: &M,
     x: &OVector<f64, M::State>,
