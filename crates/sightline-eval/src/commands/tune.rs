@@ -31,6 +31,8 @@ pub struct TuneArgs {
     pub params: Vec<String>,
     /// Seed (the filter's own seed is derived from it and its label, as in `compare`).
     pub seed: u64,
+    /// `--diffuse` states, as given.
+    pub diffuse: Vec<String>,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -38,7 +40,8 @@ pub struct TuneArgs {
 /// Runs `tune`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
     crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
-    let plant = configure(plants, &args.plant)?;
+    let mut plant = configure(plants, &args.plant)?;
+    plant.set_diffuse(&args.diffuse)?;
     let spec = FilterSpec::parse(&args.filter)?;
     // The same seed `compare --seed S` gives this label, so the likelihoods agree.
     let seed = filter_seed(args.seed, &spec.label);
@@ -68,6 +71,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
         data: Some(args.data.display().to_string()),
         dataset: Some(args.dataset.settings()),
         params: Some(args.params.clone()),
+        diffuse: args.diffuse.clone(),
         ..Settings::new("tune", plant.as_ref(), &args.plant.set, args.seed)
     });
     let dir = OutputDir::new(&args.output)?;
