@@ -372,7 +372,11 @@ fn validate_settings(
         ("--steps", shown(settings.steps), shown(want.steps)),
         ("--every", shown(settings.every), shown(want.every)),
         ("--dropout", shown(settings.dropout), shown(want.dropout)),
-        ("--diffuse", settings.diffuse.join(" "), want.diffuse.join(" ")),
+        (
+            "--diffuse",
+            settings.diffuse.join(" "),
+            want.diffuse.join(" "),
+        ),
         ("--shard", shown(settings.shard.as_ref()), shown(want.shard)),
     ];
     if let Some((what, a, b)) = pairs.into_iter().find(|(_, a, b)| a != b) {

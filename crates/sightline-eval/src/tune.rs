@@ -182,6 +182,15 @@ pub fn tune(
                     .join(", ")
             )));
         };
+        let state = name
+            .strip_prefix("x0.")
+            .or_else(|| name.strip_prefix("sd0."));
+        if let Some(state) = state.filter(|s| plant.diffuse_states().iter().any(|d| d == s)) {
+            return Err(Error::Usage(format!(
+                "tune: --param '{name}' and --diffuse {state} contradict each other: a diffuse \
+                 state has no prior mean or standard deviation to tune"
+            )));
+        }
         if matches!(p.domain, Domain::Integer(..)) {
             return Err(Error::Usage(format!(
                 "tune: --param '{name}' is a whole number; only real parameters can be tuned"

@@ -19,9 +19,12 @@
 //! - The other Gaussian filters (`ekf`, `iekf`, `ukf`, `ckf`, `ghkf`, `srukf`, and `kf` with a
 //!   constant gain, whose mean does not use the covariance) use the **large-variance
 //!   approximation** ([`large_variance_prior`]): each diffuse state gets prior variance
-//!   κᵢ = [`LARGE_VARIANCE_FACTOR`] × its declared prior variance sd0ᵢ² (the plant author's scale
-//!   for that state, so κ carries the state's unit), uncorrelated with the others. Its estimates
-//!   agree with the exact filter's after the diffuse period to about R/κ relative; its
+//!   κᵢ = [`LARGE_VARIANCE_FACTOR`] × sᵢ, uncorrelated with the others, where the scale sᵢ (in
+//!   the state's unit squared) is the larger of its declared prior variance sd0ᵢ² and the
+//!   largest variance one measurement component j leaves on it, R_jj / H_ji² (H the measurement
+//!   Jacobian at the prior mean; [`variance_scales`]) — so that κ dwarfs what the data say even
+//!   where the declared prior is a unit placeholder. Its estimates agree with the exact filter's
+//!   after the diffuse period to about sᵢ/κᵢ = 10⁻⁸ relative; its
 //!   log-likelihood keeps the first steps' ln κ terms, so it is comparable between filters using
 //!   the same approximation but not with the exact diffuse value.
 //! - Sampling filters (`pf`, `enkf`: [`KindInfo::sampling`]) draw their samples from the prior
@@ -50,34 +53,56 @@ pub const LARGE_VARIANCE_FACTOR: f64 = 1e8;
 /// An F∞ = zᵀP∞z below this share of its Cauchy–Schwarz bound (Σⱼ|zⱼ|√P∞ⱼⱼ)² is zero (round-off).
 const DIFFUSE_TOLERANCE: f64 = 1e-9;
 
-/// The variance scale of each state: its declared prior variance, or 1 where that is 0.
-fn scale<N: Dim>(prior: &Gaussian<N>, i: usize) -> f64
+/// The variance scale sᵢ of each state (see the module docs): the larger of its declared prior
+/// variance and R_jj / H_ji² over the measurement components j that see it (H at the prior mean,
+/// default input, t = 0), and 1 where neither is positive.
+pub fn variance_scales<M: Model>(model: &M, prior: &Gaussian<M::State>) -> Vec<f64>
 where
-    DefaultAllocator: nalgebra::allocator::Allocator<N> + nalgebra::allocator::Allocator<N, N>,
+    DefaultAllocator: Alloc<M::State, M::Meas>,
 {
-    let v = prior.cov[(i, i)];
-    if v > 0.0 && v.is_finite() { v } else { 1.0 }
+    let declaration = model.declare();
+    let u = declaration.default_input();
+    let (_, h) = measurement_jacobian(model, &prior.mean, u, 0.0, JacobianSource::Model);
+    let r = model.measurement_noise(0.0);
+    (0..prior.cov.nrows())
+        .map(|i| {
+            let mapped = (0..h.nrows())
+                .filter(|&j| h[(j, i)] != 0.0)
+                .map(|j| r[(j, j)] / (h[(j, i)] * h[(j, i)]))
+                .fold(prior.cov[(i, i)], f64::max);
+            if mapped > 0.0 && mapped.is_finite() {
+                mapped
+            } else {
+                1.0
+            }
+        })
+        .collect()
 }
 
 /// The prior of the large-variance approximation: each state with `diffuse[i]` gets variance
-/// [`LARGE_VARIANCE_FACTOR`] × its declared variance and no correlation with the others.
+/// κᵢ = [`LARGE_VARIANCE_FACTOR`] × `scales[i]` ([`variance_scales`]) and no correlation with
+/// the others.
 ///
 /// ```
 /// use nalgebra::{Matrix2, Vector2};
 /// use sightline_core::Gaussian;
 /// let prior = Gaussian { mean: Vector2::new(1.0, 2.0), cov: Matrix2::new(4.0, 1.0, 1.0, 9.0) };
-/// let wide = sightline_filters::diffuse::large_variance_prior(&prior, &[true, false]);
-/// assert_eq!(wide.cov, Matrix2::new(4e8, 0.0, 0.0, 9.0));
+/// let wide = sightline_filters::diffuse::large_variance_prior(&prior, &[true, false], &[5.0, 9.0]);
+/// assert_eq!(wide.cov, Matrix2::new(5e8, 0.0, 0.0, 9.0));
 /// assert_eq!(wide.mean, prior.mean);
 /// ```
-pub fn large_variance_prior<N: Dim>(prior: &Gaussian<N>, diffuse: &[bool]) -> Gaussian<N>
+pub fn large_variance_prior<N: Dim>(
+    prior: &Gaussian<N>,
+    diffuse: &[bool],
+    scales: &[f64],
+) -> Gaussian<N>
 where
     DefaultAllocator: nalgebra::allocator::Allocator<N> + nalgebra::allocator::Allocator<N, N>,
 {
     let mut wide = prior.clone();
     let n = wide.cov.nrows();
     for i in (0..n).filter(|&i| diffuse.get(i).copied().unwrap_or(false)) {
-        let kappa = LARGE_VARIANCE_FACTOR * scale(prior, i);
+        let kappa = LARGE_VARIANCE_FACTOR * scales.get(i).copied().unwrap_or(1.0);
         for j in 0..n {
             wide.cov[(i, j)] = 0.0;
             wide.cov[(j, i)] = 0.0;
@@ -101,10 +126,11 @@ pub fn build<M: Model>(
 where
     DefaultAllocator: Alloc<M::State, M::Meas>,
 {
-    let wide = large_variance_prior(prior, diffuse);
     if !diffuse.iter().any(|&d| d) {
         return registry::build(model, prior, spec, seed);
     }
+    let scales = variance_scales(model, prior);
+    let wide = large_variance_prior(prior, diffuse, &scales);
     if KINDS.iter().any(|k| k.kind == spec.kind && k.sampling) {
         return Err(SpecError::NotApplicable {
             spec: spec.label.clone(),
@@ -129,7 +155,7 @@ where
     if !optimal {
         return Ok(approximate);
     }
-    let mut exact = DiffuseKf::new(model.clone(), prior, diffuse, &spec.label);
+    let mut exact = DiffuseKf::new(model.clone(), prior, diffuse, &scales, &spec.label);
     exact.kf.belief.remedies = Remedies::from_options(&opts, model.meas_dim().value())?;
     Ok(Box::new(exact))
 }
@@ -167,11 +193,13 @@ where
     DefaultAllocator: Alloc<M::State, M::Meas>,
 {
     /// A diffuse `kf` from `prior`, the states with `diffuse[i]` diffuse (their prior mean is
-    /// kept but carries no weight).
+    /// kept but carries no weight); `scales` ([`variance_scales`]) set only the covariance
+    /// reported during the diffuse period.
     pub fn new(
         model: M,
         prior: &Gaussian<M::State>,
         diffuse: &[bool],
+        scales: &[f64],
         label: &str,
     ) -> Self {
         let (n, _) = prior.cov.shape_generic();
@@ -185,7 +213,8 @@ where
                     p_star.cov[(j, i)] = 0.0;
                 }
                 p_inf[(i, i)] = 1.0;
-                sqrt_kappa[i] = (LARGE_VARIANCE_FACTOR * scale(prior, i)).sqrt();
+                sqrt_kappa[i] =
+                    (LARGE_VARIANCE_FACTOR * scales.get(i).copied().unwrap_or(1.0)).sqrt();
             }
         }
         let kf = Kf::new(model, p_star, label);
@@ -254,6 +283,7 @@ where
         let mut residual = b.model.measurement_residual(&y, &predicted);
         let mut r = b.model.measurement_noise(t);
         let m = y.len();
+        let mut increment = 0.0;
         for i in (0..m).filter(|&i| y[i].is_nan()) {
             residual[i] = 0.0;
             h.row_mut(i).fill(0.0);
@@ -263,23 +293,32 @@ where
             }
             r[(i, i)] = 1.0;
         }
-        // Decorrelate: with R = LLᵀ, L⁻¹y has unit, independent noise (D&K §6.4.3); the
-        // Jacobian of the transformation adds −ln|L| over the present components.
-        let tag = &b.tag;
-        let l = cholesky(&r, "measurement noise covariance")
-            .map_err(|e| tag.numeric(e))?
-            .l();
-        let not_triangular = || {
-            tag.numeric(sightline_core::NumericError::NotPositiveDefinite {
-                quantity: "measurement noise covariance",
-            })
+        // A correlated R is decorrelated first: with R = LLᵀ, L⁻¹y has unit, independent noise
+        // (D&K §6.4.3) and the Jacobian of the transformation adds −ln L_ii per component. A
+        // diagonal R (the usual case) is used as it is, with no rounding from the transform.
+        let diagonal = (0..m).all(|i| (0..m).all(|j| i == j || r[(i, j)] == 0.0));
+        let (residual, h, noise) = if diagonal {
+            (residual, h, r.diagonal())
+        } else {
+            let tag = &b.tag;
+            let l = cholesky(&r, "measurement noise covariance")
+                .map_err(|e| tag.numeric(e))?
+                .l();
+            let not_triangular = || {
+                tag.numeric(sightline_core::NumericError::NotPositiveDefinite {
+                    quantity: "measurement noise covariance",
+                })
+            };
+            let residual = l
+                .solve_lower_triangular(&residual)
+                .ok_or_else(not_triangular)?;
+            let h = l.solve_lower_triangular(&h).ok_or_else(not_triangular)?;
+            for i in (0..m).filter(|&i| !y[i].is_nan()) {
+                increment -= l[(i, i)].ln();
+            }
+            (residual, h, r.diagonal().map(|_| 1.0))
         };
-        let residual = l
-            .solve_lower_triangular(&residual)
-            .ok_or_else(not_triangular)?;
-        let h = l.solve_lower_triangular(&h).ok_or_else(not_triangular)?;
         let start = b.mean.clone();
-        let mut increment = 0.0;
         for i in (0..m).filter(|&i| !y[i].is_nan()) {
             let z = h.row(i).transpose();
             // The plant is affine (kf), so the residual at the current mean is the first one
@@ -288,7 +327,7 @@ where
             let m_inf = &self.p_inf * &z;
             let f_inf = z.dot(&m_inf);
             let m_star = &b.cov * &z;
-            let f_star = z.dot(&m_star) + 1.0;
+            let f_star = z.dot(&m_star) + noise[i];
             let bound: f64 = z
                 .iter()
                 .enumerate()
@@ -306,7 +345,6 @@ where
                 b.cov -= &m_star * m_star.transpose() / f_star;
                 increment -= 0.5 * (LN_2PI + f_star.ln() + v * v / f_star);
             }
-            increment -= l[(i, i)].ln();
         }
         symmetrise(&mut b.cov);
         ensure_finite(b.mean.iter(), "posterior mean").map_err(|e| b.tag.numeric(e))?;
