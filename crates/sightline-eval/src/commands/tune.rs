@@ -98,21 +98,31 @@ pub fn describe(tuned: &Tuned, model: &str, set: &[String]) -> String {
         "start",
         "maximum likelihood",
         "std error",
+        "95 % interval",
     ]);
     for (name, value) in &tuned.params {
-        let se = tuned
-            .std_errors
+        let se = tuned.std_errors.get(name).copied().flatten().map_or(
+            if tuned.notes.is_empty() {
+                "n/a (flat or not a maximum)".to_string()
+            } else {
+                "withheld (see the note)".to_string()
+            },
+            |v| format!("{v:.4e}"),
+        );
+        let interval = tuned
+            .intervals
             .get(name)
             .copied()
             .flatten()
-            .map_or("n/a (flat or not a maximum)".to_string(), |v| {
-                format!("{v:.4e}")
+            .map_or("n/a".to_string(), |[lo, hi]| {
+                format!("[{lo:.4e}, {hi:.4e}]")
             });
         table.add_row(vec![
             name.clone(),
             format!("{:.6e}", tuned.start.get(name).copied().unwrap_or(f64::NAN)),
             format!("{value:.6e}"),
             se,
+            interval,
         ]);
     }
     let mut out = format!("{table}\n");
@@ -126,6 +136,9 @@ pub fn describe(tuned: &Tuned, model: &str, set: &[String]) -> String {
         tuned.iterations,
         tuned.trace.len()
     ));
+    for note in &tuned.notes {
+        out.push_str(&format!("note: {note}\n"));
+    }
     let mut sets: Vec<String> = set
         .iter()
         .filter(|s| {
