@@ -92,6 +92,35 @@ fn local_level_after_one_observation_has_mean_y1_and_variance_r() {
     }
 }
 
+/// Missing measurements (empty cells) during the diffuse period leave it open: the level stays
+/// unbounded until the first observation, which then gives mean y and variance r exactly (the
+/// closed form above, D&K §2.9, with the prediction over the gap adding nothing to an unbounded
+/// variance; D&K §2.7 for missing observations). The missing rows add nothing to the likelihood.
+#[test]
+fn missing_rows_keep_the_diffuse_period_open() {
+    let p = plant("local-level", &[("q", 2.0), ("r", 3.0)], &["level"]);
+    let mut f = filter(p.as_ref(), "kf");
+    for k in 0..3 {
+        if k > 0 {
+            f.predict(&[], k as f64 - 1.0, 1.0).unwrap();
+        }
+        f.update(&[f64::NAN], &[], k as f64).unwrap();
+        assert_eq!(f.log_likelihood_increment(), 0.0);
+        assert!(f.covariance()[0] > 1e8, "still unbounded at row {k}");
+    }
+    f.predict(&[], 2.0, 1.0).unwrap();
+    f.update(&[4.25], &[], 3.0).unwrap();
+    assert_eq!(f.mean()[0], 4.25);
+    assert!((f.covariance()[0] - 3.0).abs() < 1e-12);
+    f.predict(&[], 3.0, 1.0).unwrap();
+    f.update(&[5.0], &[], 4.0).unwrap();
+    // The ordinary filter from here: F = r + q + r, v = 0.75.
+    let (big_f, v) = (3.0 + 2.0 + 3.0, 0.75);
+    let want = -0.5 * ((2.0 * std::f64::consts::PI).ln() + f64::ln(big_f) + v * v / big_f);
+    assert!((f.log_likelihood_increment() - want).abs() < 1e-12);
+    assert!(f.innovation().is_some());
+}
+
 /// tests/reference/nile.py (numpy, written from D&K §2.9 and §7.2.2): the filtered means and
 /// variances of every year and the diffuse log-likelihood on the Nile at D&K's maximum-likelihood
 /// variances σ²_ε = 15099, σ²_η = 1469.1 (D&K 2012 §2.10, from memory). The script also checks its
