@@ -94,6 +94,7 @@ fn campaign(
         filters: filters.iter().map(|s| s.to_string()).collect(),
         every: 1,
         dropout: 0.0,
+        diffuse: Vec::new(),
     };
     summarise(&run_campaign(plant.as_ref(), &specs, &spec, 0..runs).unwrap())
 }

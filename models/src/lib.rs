@@ -13,6 +13,7 @@
 //! | [`cstr`] | ca, temp | temp | textbook exothermic CSTR benchmark |
 //! | [`tracking`] | px, py, vx, vy, omega | range, bearing | Bar-Shalom et al. 2001, §11.7 |
 //! | [`tankchain`] | h1..hn (n at run time) | hn | Torricelli cascade, `Dyn` states |
+//! | [`local_level`] | level | level | Durbin & Koopman 2012, ch. 2 |
 //!
 //! ```
 //! use sightline_core::prelude::*;
@@ -27,6 +28,7 @@ use sightline_core::{Alloc, Model};
 
 pub mod cstr;
 pub mod cv;
+pub mod local_level;
 pub mod pendulum;
 pub mod quadtank;
 pub mod tankchain;
@@ -36,6 +38,7 @@ pub mod ungm;
 
 pub use cstr::Cstr;
 pub use cv::Cv;
+pub use local_level::LocalLevel;
 pub use pendulum::Pendulum;
 pub use quadtank::QuadTank;
 pub use tankchain::TankChain;
@@ -62,4 +65,5 @@ pub fn visit_all(visitor: &mut impl ModelVisitor) {
     visitor.visit(Cstr::default());
     visitor.visit(Tracking::default());
     visitor.visit(TankChain::default());
+    visitor.visit(LocalLevel::default());
 }

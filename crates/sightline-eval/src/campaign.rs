@@ -71,6 +71,9 @@ pub struct CampaignSpec {
     pub every: usize,
     /// `--dropout P`: each simulated measurement component is dropped with probability P.
     pub dropout: f64,
+    /// `--diffuse` states, as given (absent in files written before it existed).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub diffuse: Vec<String>,
 }
 
 impl CampaignSpec {
@@ -1049,6 +1052,7 @@ mod tests {
                 filters: Vec::new(),
                 every: 1,
                 dropout: 0.0,
+                diffuse: Vec::new(),
             },
             states: Vec::new(),
             measurements: 0,

@@ -186,6 +186,10 @@ pub enum Command {
         /// DIR/smoothed.csv and smoothed plots (holds the run in memory).
         #[arg(long)]
         smooth: bool,
+        /// Start STATE diffuse (unknown, infinite prior variance): exact diffuse kf, a
+        /// large-variance prior for the other Gaussian filters; repeat, or `all`.
+        #[arg(long = "diffuse", value_name = "STATE")]
+        diffuse: Vec<String>,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
@@ -215,6 +219,10 @@ pub enum Command {
         /// Drop each simulated measurement component with probability P.
         #[arg(long, value_name = "P", default_value_t = 0.0)]
         dropout: f64,
+        /// Start STATE diffuse (unknown, infinite prior variance): exact diffuse kf, a
+        /// large-variance prior for the other Gaussian filters; repeat, or `all`.
+        #[arg(long = "diffuse", value_name = "STATE")]
+        diffuse: Vec<String>,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
@@ -245,6 +253,10 @@ pub enum Command {
         /// Seed of a sampling filter's random streams (as in `compare`).
         #[arg(long, default_value_t = 0)]
         seed: u64,
+        /// Start STATE diffuse (unknown, infinite prior variance): exact diffuse kf, a
+        /// large-variance prior for the other Gaussian filters; repeat, or `all`.
+        #[arg(long = "diffuse", value_name = "STATE")]
+        diffuse: Vec<String>,
         /// Output directory.
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,

@@ -372,6 +372,11 @@ fn validate_settings(
         ("--steps", shown(settings.steps), shown(want.steps)),
         ("--every", shown(settings.every), shown(want.every)),
         ("--dropout", shown(settings.dropout), shown(want.dropout)),
+        (
+            "--diffuse",
+            settings.diffuse.join(" "),
+            want.diffuse.join(" "),
+        ),
         ("--shard", shown(settings.shard.as_ref()), shown(want.shard)),
     ];
     if let Some((what, a, b)) = pairs.into_iter().find(|(_, a, b)| a != b) {
@@ -405,6 +410,7 @@ fn validate_settings(
 ///         filters: vec!["kf".into(), "ukf".into()],
 ///         every: 2,
 ///         dropout: 0.1,
+///         diffuse: vec![],
 ///     },
 ///     states: vec!["pos".into(), "vel".into()],
 ///     measurements: 1,
@@ -445,8 +451,13 @@ pub fn describe(totals: &Totals) -> String {
         .as_ref()
         .map(|s| format!(" (Sightline {})", s.sightline_version))
         .unwrap_or_default();
+    let diffuse = if spec.diffuse.is_empty() {
+        String::new()
+    } else {
+        format!(", --diffuse {}", spec.diffuse.join(" "))
+    };
     format!(
-        "model {}, {} runs × {} steps, seed {}, filters {}, {set}, {every}, {dropout}{version}",
+        "model {}, {} runs × {} steps, seed {}, filters {}, {set}, {every}, {dropout}{diffuse}{version}",
         spec.model,
         spec.runs,
         spec.steps,
@@ -485,6 +496,14 @@ pub fn differences(found: &CampaignSpec, wanted: &CampaignSpec, runs: bool) -> V
         found.dropout.to_string(),
         wanted.dropout.to_string(),
     );
+    let diffuse = |s: &CampaignSpec| {
+        if s.diffuse.is_empty() {
+            "none".to_string()
+        } else {
+            s.diffuse.join(" ")
+        }
+    };
+    differ("--diffuse", diffuse(found), diffuse(wanted));
     out
 }
 
@@ -502,6 +521,7 @@ pub fn differences(found: &CampaignSpec, wanted: &CampaignSpec, runs: bool) -> V
 ///     filters: vec!["kf".into(), "pf:particles=500".into()],
 ///     every: 2,
 ///     dropout: 0.25,
+///     diffuse: vec![],
 /// };
 /// assert_eq!(
 ///     sightline_eval::partial::command_line(&spec, Some(Shard { index: 2, count: 4 })),

@@ -12,7 +12,7 @@ use sightline_filters::{Filter, FilterSpec, SpecError};
 use sightline_models::ModelVisitor;
 
 use crate::dataset::{Dataset, Layout, Record};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::pcrlb::{Bound, information_terms, pcrlb};
 use crate::simulate::{SimOptions, simulate, simulate_each};
 
@@ -43,6 +43,14 @@ pub trait AnyPlant: Send + Sync {
     fn prior(&self) -> (Vec<f64>, Vec<f64>);
     /// The constant input used where the data has no input column (`u.` overrides applied).
     fn constant_input(&self) -> Vec<f64>;
+    /// Applies `--diffuse STATE...` (`all` for every state): those states start diffuse in
+    /// every filter built from now on (see [`sightline_filters::diffuse`]); simulation still
+    /// draws the truth from the declared prior. Refuses an unknown state (listing the states), a
+    /// state named twice, and a state whose prior was set with `x0.`/`sd0.` (a diffuse state has
+    /// neither).
+    fn set_diffuse(&mut self, states: &[String]) -> Result<()>;
+    /// The names of the diffuse states, in model order.
+    fn diffuse_states(&self) -> Vec<String>;
     /// Builds the filter a spec names, starting from the prior.
     fn build_filter(&self, spec: &FilterSpec, seed: u64) -> Result<Box<dyn Filter>, SpecError>;
     /// Simulates a dataset with truth.
@@ -84,6 +92,8 @@ pub struct Plant<M> {
     sd0: Vec<Option<f64>>,
     /// Overrides of the constant input, by input index.
     u: Vec<Option<f64>>,
+    /// Which states start diffuse (`--diffuse`), by state index.
+    diffuse: Vec<bool>,
 }
 
 impl<M: Model> Plant<M>
@@ -101,6 +111,7 @@ where
             x0: vec![None; n],
             sd0: vec![None; n],
             u: vec![None; m],
+            diffuse: vec![false; n],
         }
     }
 
@@ -299,6 +310,7 @@ where
                 self.declaration = self.model.declare();
                 self.x0.resize(self.declaration.states().len(), None);
                 self.sd0.resize(self.declaration.states().len(), None);
+                self.diffuse.resize(self.declaration.states().len(), false);
                 self.u.resize(self.declaration.inputs().len(), None);
                 Ok(())
             }
@@ -343,8 +355,71 @@ where
         self.input_vector()
     }
 
+    fn set_diffuse(&mut self, states: &[String]) -> Result<()> {
+        let declared: Vec<String> = self
+            .declaration
+            .states()
+            .iter()
+            .map(|v| v.name.to_string())
+            .collect();
+        let mut mask = vec![false; declared.len()];
+        for (k, given) in states.iter().enumerate() {
+            let name = given.trim();
+            if states[..k].iter().any(|s| s.trim() == name) {
+                return Err(Error::Usage(format!(
+                    "--diffuse {name} is given twice; give each state once"
+                )));
+            }
+            if name == "all" {
+                mask.iter_mut().for_each(|d| *d = true);
+                continue;
+            }
+            let Some(i) = declared.iter().position(|s| s == name) else {
+                return Err(Error::Usage(format!(
+                    "--diffuse {name}: model '{}' has no state '{name}'; its states are: {} \
+                     (or 'all')",
+                    self.declaration.name(),
+                    declared.join(", ")
+                )));
+            };
+            mask[i] = true;
+        }
+        for (i, state) in declared.iter().enumerate().filter(|(i, _)| mask[*i]) {
+            for (prefix, given) in [("x0.", self.x0[i]), ("sd0.", self.sd0[i])] {
+                if let Some(value) = given {
+                    return Err(Error::Usage(format!(
+                        "--diffuse and --set {prefix}{state}={value} contradict each other: a \
+                         diffuse state has no prior mean or standard deviation; drop one of them"
+                    )));
+                }
+            }
+        }
+        self.diffuse = mask;
+        Ok(())
+    }
+
+    fn diffuse_states(&self) -> Vec<String> {
+        self.declaration
+            .states()
+            .iter()
+            .zip(&self.diffuse)
+            .filter(|(_, d)| **d)
+            .map(|(v, _)| v.name.to_string())
+            .collect()
+    }
+
     fn build_filter(&self, spec: &FilterSpec, seed: u64) -> Result<Box<dyn Filter>, SpecError> {
-        sightline_filters::build(&self.model, &self.prior_gaussian(), spec, seed)
+        let prior = self.prior_gaussian();
+        if self.diffuse.iter().any(|&d| d) {
+            return sightline_filters::diffuse::build(
+                &self.model,
+                &prior,
+                &self.diffuse,
+                spec,
+                seed,
+            );
+        }
+        sightline_filters::build(&self.model, &prior, spec, seed)
     }
 
     fn simulate(&self, steps: usize, seed: u64, options: &SimOptions) -> Result<Dataset> {

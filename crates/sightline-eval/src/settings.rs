@@ -78,6 +78,9 @@ pub struct Settings {
     /// `montecarlo --dropout`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub dropout: Option<f64>,
+    /// `--diffuse` states, as given (absent when none).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub diffuse: Vec<String>,
     /// `montecarlo --shard K/N` (absent for a whole or merged campaign).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shard: Option<String>,
@@ -112,6 +115,7 @@ impl Settings {
             steps: Some(spec.steps),
             every: Some(spec.every),
             dropout: Some(spec.dropout),
+            diffuse: spec.diffuse.clone(),
             shard: shard.map(|s| s.to_string()),
             ..Settings::default()
         }
@@ -179,6 +183,9 @@ impl Settings {
         }
         for p in self.params.iter().flatten() {
             flag("--param", p.clone());
+        }
+        for d in &self.diffuse {
+            flag("--diffuse", d.clone());
         }
         if let Some(every) = self.every {
             flag("--every", every.to_string());

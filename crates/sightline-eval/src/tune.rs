@@ -9,6 +9,23 @@
 //! with the Hessian by central differences in the search coordinates and the delta method back to
 //! the parameters (SE(θ) = θ·SE(ln θ) in log space). Our filters run on `f64`, so the Hessian is
 //! numerical rather than by automatic differentiation.
+//!
+//! **Intervals.** Each standard error comes with a 95 % Wald interval on the scale it was
+//! computed in, mapped to the parameter: exp(ln θ̂ ± 1.96·SE(ln θ)) for a positive parameter
+//! (so it never leaves the domain, and is skewed as the likelihood is in θ), θ̂ ± 1.96·SE(θ)
+//! otherwise (1.96 = Φ⁻¹(0.975); common practice).
+//!
+//! **Sampling filters** (`pf`, `enkf`): their log-likelihood is a Monte Carlo estimate. With one
+//! seed the search sees one smooth-looking realisation (common random numbers), but its
+//! curvature over a finite-difference step measures the sampling noise as much as the
+//! information, so standard errors and intervals are withheld (null) with a note saying so;
+//! `--seed` repeats the search with other draws, and the spread of the estimates across seeds
+//! shows the Monte Carlo error.
+//!
+//! **Refusals** (exit 2): no measurement in the data; fewer rows with a measurement than
+//! parameters; a parameter the likelihood does not depend on (changing it by the simplex's first
+//! step, a factor e^±0.5 in log space, moves ln L by less than [`FLAT_TOLERANCE`] × max(1, |ln L|)),
+//! which would otherwise be "estimated" wherever the search happened to stop.
 
 use std::collections::BTreeMap;
 use std::sync::Mutex;
@@ -23,6 +40,13 @@ use sightline_filters::{Filter, FilterSpec};
 use crate::dataset::Dataset;
 use crate::error::{Error, Result};
 use crate::plant::AnyPlant;
+
+/// The relative change of ln L below which a parameter is refused as one the likelihood does
+/// not depend on (see the module docs): round-off level of a sum over a dataset.
+pub const FLAT_TOLERANCE: f64 = 1e-10;
+
+/// Φ⁻¹(0.975), the half-width of a 95 % normal interval in standard errors.
+const Z_95: f64 = 1.959_963_984_540_054;
 
 /// One evaluation of the objective, as recorded in the trace.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -46,8 +70,16 @@ pub struct Tuned {
     pub start: BTreeMap<String, f64>,
     /// Log-likelihood at the start.
     pub start_log_likelihood: Option<f64>,
-    /// Approximate standard errors (null where the curvature is not negative-definite).
+    /// Approximate standard errors (null where the curvature is not negative-definite, and for
+    /// a sampling filter).
     pub std_errors: BTreeMap<String, Option<f64>>,
+    /// 95 % intervals from the curvature on the search scale (see the module docs), null where
+    /// the standard error is.
+    #[serde(default)]
+    pub intervals: BTreeMap<String, Option<[f64; 2]>>,
+    /// What a reader of the result should know (e.g. why standard errors are withheld).
+    #[serde(default)]
+    pub notes: Vec<String>,
     /// Filter spec whose likelihood was maximised.
     pub filter: String,
     /// Optimiser used.
@@ -167,6 +199,26 @@ pub fn tune(
     if names.is_empty() {
         return Err(Error::Usage("tune: give at least one --param NAME".into()));
     }
+    let measured = data
+        .records
+        .iter()
+        .filter(|r| r.y.iter().any(|v| !v.is_nan()))
+        .count();
+    if measured == 0 {
+        return Err(Error::Usage(format!(
+            "tune: the dataset's {} rows hold no measurement at all (every y. cell is empty), so \
+             the likelihood does not depend on any parameter; give data with measurements",
+            data.records.len()
+        )));
+    }
+    if measured < names.len() {
+        return Err(Error::Usage(format!(
+            "tune: {} parameters cannot be estimated from {measured} row(s) with a measurement; \
+             give at least as many measured rows as --param names (and many more for a useful \
+             estimate)",
+            names.len()
+        )));
+    }
     let params = plant.parameters();
     let mut coords = Vec::new();
     let mut start = BTreeMap::new();
@@ -182,6 +234,15 @@ pub fn tune(
                     .join(", ")
             )));
         };
+        let state = name
+            .strip_prefix("x0.")
+            .or_else(|| name.strip_prefix("sd0."));
+        if let Some(state) = state.filter(|s| plant.diffuse_states().iter().any(|d| d == s)) {
+            return Err(Error::Usage(format!(
+                "tune: --param '{name}' and --diffuse {state} contradict each other: a diffuse \
+                 state has no prior mean or standard deviation to tune"
+            )));
+        }
         if matches!(p.domain, Domain::Integer(..)) {
             return Err(Error::Usage(format!(
                 "tune: --param '{name}' is a whole number; only real parameters can be tuned"
@@ -209,21 +270,18 @@ pub fn tune(
     };
     let z0: Vec<f64> = coords.iter().map(|c| c.to_search(start[&c.name])).collect();
     let start_ll = objective.evaluate(&z0);
-    if start_ll.is_none() {
+    let Some(start_value) = start_ll else {
         return Err(Error::Run(format!(
             "tune: filter '{}' fails at the starting parameters; set a better start with --set",
             spec.label
         )));
-    }
+    };
+    refuse_flat(&objective, &z0, start_value)?;
     // Initial simplex: the start and a step of 0.5 (a factor e^0.5 ≈ 1.65 in log space) per axis.
     let mut simplex = vec![z0.clone()];
     for i in 0..z0.len() {
         let mut z = z0.clone();
-        z[i] += if coords[i].log {
-            0.5
-        } else {
-            0.5 * z0[i].abs().max(1.0)
-        };
+        z[i] += simplex_step(&coords[i], z0[i]);
         simplex.push(z);
     }
     let solver = NelderMead::new(simplex)
@@ -247,8 +305,24 @@ pub fn tune(
     let best_ll = objective
         .evaluate(&best)
         .ok_or_else(|| Error::Run("tune: the filter fails at the optimum".into()))?;
-    let std_errors = standard_errors(&objective, &best, best_ll);
+    let sampling = sightline_filters::KINDS
+        .iter()
+        .any(|k| k.kind == spec.kind && k.sampling);
+    let mut notes = Vec::new();
+    let std_errors = if sampling {
+        notes.push(format!(
+            "standard errors and intervals withheld: the log-likelihood of {} is a Monte Carlo \
+             estimate, and its curvature at one seed measures sampling noise as much as the \
+             information in the data; rerun with other --seed values and read the spread of the \
+             estimates, or tune a Gaussian filter (ekf, ukf, ...)",
+            spec.label
+        ));
+        coords.iter().map(|c| (c.name.clone(), None)).collect()
+    } else {
+        standard_errors(&objective, &best, best_ll)
+    };
     crate::interrupt::check(|| "while estimating the standard errors".into())?;
+    let intervals = intervals(&coords, &best, &std_errors);
     let trace = trace.into_inner().unwrap_or_default();
     Ok(Tuned {
         params: coords
@@ -260,12 +334,73 @@ pub fn tune(
         start,
         start_log_likelihood: start_ll,
         std_errors,
+        intervals,
+        notes,
         filter: spec.label.clone(),
         optimiser: "Nelder–Mead simplex (argmin)".into(),
         iterations,
         trace,
         settings: None,
     })
+}
+
+/// Refuses a parameter the likelihood does not depend on: ln L at the start moved by the
+/// simplex's first step in either direction changes by no more than [`FLAT_TOLERANCE`] relative.
+fn refuse_flat(objective: &Objective<'_>, z0: &[f64], ll: f64) -> Result<()> {
+    let tolerance = FLAT_TOLERANCE * ll.abs().max(1.0);
+    for (i, c) in objective.coords.iter().enumerate() {
+        let step = simplex_step(c, z0[i]);
+        let moved = [step, -step].iter().any(|&s| {
+            let mut z = z0.to_vec();
+            z[i] += s;
+            // A point where the filter fails is a dependence too (the search avoids it).
+            objective
+                .evaluate(&z)
+                .is_none_or(|v| (v - ll).abs() > tolerance)
+        });
+        if !moved {
+            let change = if c.log {
+                "a factor e^±0.5".to_string()
+            } else {
+                format!("±{step}")
+            };
+            return Err(Error::Usage(format!(
+                "tune: the log-likelihood of '{}' does not depend on --param '{}' (changing it \
+                 by {change} from {} moves ln L by less than {tolerance:.1e}); it cannot be \
+                 estimated from these data — drop it, or check that the filter and data use it",
+                objective.spec.label,
+                c.name,
+                c.to_param(z0[i])
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// The first step of the simplex along a coordinate: 0.5 in log space (a factor e^0.5 ≈ 1.65),
+/// else half the start's magnitude (at least 0.5).
+fn simplex_step(c: &Coordinate, z: f64) -> f64 {
+    if c.log { 0.5 } else { 0.5 * z.abs().max(1.0) }
+}
+
+/// 95 % intervals (see the module docs) from the standard errors at the optimum `z`.
+fn intervals(
+    coords: &[Coordinate],
+    z: &[f64],
+    std_errors: &BTreeMap<String, Option<f64>>,
+) -> BTreeMap<String, Option<[f64; 2]>> {
+    coords
+        .iter()
+        .zip(z)
+        .map(|(c, &zi)| {
+            let interval = std_errors.get(&c.name).copied().flatten().map(|se| {
+                // On the search scale: SE(ln θ) = SE(θ)/θ for a positive parameter.
+                let sd = if c.log { se / c.to_param(zi) } else { se };
+                [c.to_param(zi - Z_95 * sd), c.to_param(zi + Z_95 * sd)]
+            });
+            (c.name.clone(), interval)
+        })
+        .collect()
 }
 
 /// Standard errors from the central-difference Hessian of the log-likelihood at `z`.

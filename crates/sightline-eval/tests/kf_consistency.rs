@@ -28,6 +28,7 @@ fn kalman_filter_anees_is_inside_its_band_on_cv() {
         filters: vec!["kf".into()],
         every: 1,
         dropout: 0.0,
+        diffuse: Vec::new(),
     };
     let totals = run_campaign(cv.as_ref(), &specs, &campaign, 0..RUNS).unwrap();
     let summary = summarise(&totals);
@@ -117,6 +118,7 @@ fn one_run_of_a_campaign_reproduces_alone() {
         filters: labels.iter().map(|s| s.to_string()).collect(),
         every: 1,
         dropout: 0.0,
+        diffuse: Vec::new(),
     };
     // Shard 2/3 of 3 runs is run 1 alone.
     let range = Shard { index: 2, count: 3 }.range(3);

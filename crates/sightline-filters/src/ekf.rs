@@ -30,6 +30,7 @@ pub const INFO: KindInfo = KindInfo {
         GATE,
     ],
     linear_only: false,
+    sampling: false,
 };
 
 /// Extended Kalman filter over plant `M`.

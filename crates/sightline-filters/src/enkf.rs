@@ -70,6 +70,7 @@ pub const INFO: KindInfo = KindInfo {
         },
     ],
     linear_only: false,
+    sampling: true,
 };
 
 /// Settings of an [`EnsembleKalmanFilter`]; `Default` gives the spec defaults.

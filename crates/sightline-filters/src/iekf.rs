@@ -61,6 +61,7 @@ pub const INFO: KindInfo = KindInfo {
         GATE,
     ],
     linear_only: false,
+    sampling: false,
 };
 
 /// Iterated extended Kalman filter over plant `M`.

@@ -37,6 +37,7 @@ pub const INFO: KindInfo = KindInfo {
         GATE,
     ],
     linear_only: true,
+    sampling: false,
 };
 
 /// How the Kalman filter chooses its gain.
@@ -54,7 +55,7 @@ pub struct Kf<M: Model>
 where
     DefaultAllocator: Alloc<M::State, M::Meas>,
 {
-    belief: Belief<M>,
+    pub(crate) belief: Belief<M>,
     gain: Gain<OMatrix<f64, M::State, M::Meas>>,
 }
 

@@ -15,6 +15,7 @@
 
 mod belief;
 mod cloud;
+pub mod diffuse;
 pub mod ekf;
 pub mod enkf;
 pub mod filter;
@@ -32,6 +33,7 @@ pub mod srukf;
 mod update;
 
 pub use cloud::NoiseAt;
+pub use diffuse::DiffuseKf;
 pub use ekf::Ekf;
 pub use enkf::{EnkfConfig, EnsembleKalmanFilter};
 pub use filter::{Diagnostics, Filter, FilterError, Innovation};

@@ -154,6 +154,7 @@ pub const INFO: KindInfo = KindInfo {
         },
     ],
     linear_only: false,
+    sampling: true,
 };
 
 /// Which particle filter runs.

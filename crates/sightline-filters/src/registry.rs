@@ -20,6 +20,10 @@ pub struct KindInfo {
     pub options: &'static [OptionInfo],
     /// Whether it only applies to linear plants.
     pub linear_only: bool,
+    /// Whether it represents the belief by random samples drawn from the prior (`pf`, `enkf`):
+    /// such a filter cannot start from a diffuse (infinite-variance) prior, see
+    /// [`crate::diffuse`].
+    pub sampling: bool,
 }
 
 macro_rules! registry {

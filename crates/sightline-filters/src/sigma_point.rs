@@ -47,6 +47,7 @@ pub const UKF: KindInfo = KindInfo {
         GATE,
     ],
     linear_only: false,
+    sampling: false,
 };
 
 /// Registry entry for `ckf`.
@@ -55,6 +56,7 @@ pub const CKF: KindInfo = KindInfo {
     about: "cubature Kalman filter, third-degree spherical-radial rule (2n points)",
     options: &[REPAIR, FLOOR, GATE],
     linear_only: false,
+    sampling: false,
 };
 
 /// Registry entry for `ghkf`.
@@ -72,6 +74,7 @@ pub const GHKF: KindInfo = KindInfo {
         GATE,
     ],
     linear_only: false,
+    sampling: false,
 };
 
 /// A Gaussian filter whose moments come from a sigma-point rule.

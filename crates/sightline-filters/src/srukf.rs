@@ -65,6 +65,7 @@ pub const INFO: KindInfo = KindInfo {
     about: "square-root UKF: propagates Cholesky factors by QR and rank-one updates",
     options: UKF.options,
     linear_only: false,
+    sampling: false,
 };
 
 /// Square-root unscented Kalman filter over plant `M`.

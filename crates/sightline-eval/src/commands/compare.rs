@@ -45,6 +45,8 @@ pub struct CompareArgs {
     pub seed: u64,
     /// Run smoothers.
     pub smooth: bool,
+    /// `--diffuse` states, as given.
+    pub diffuse: Vec<String>,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -474,7 +476,8 @@ pub fn open_dataset(
 /// Runs `compare`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
-    let plant = configure(plants, &args.plant)?;
+    let mut plant = configure(plants, &args.plant)?;
+    plant.set_diffuse(&args.diffuse)?;
     // Built once before reading so that a bad spec is reported before any work.
     let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
     let (mut reader, mut notes) =
@@ -493,6 +496,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
         data: Some(args.data.display().to_string()),
         dataset: Some(args.dataset.settings()),
         smooth: Some(args.smooth),
+        diffuse: args.diffuse.clone(),
         ..Settings::new("compare", plant.as_ref(), &args.plant.set, args.seed)
     };
     let shown_already = notes.len();

@@ -34,6 +34,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
             filters,
             seed,
             smooth,
+            diffuse,
             output,
         } => compare::run(
             plants,
@@ -44,6 +45,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 filters,
                 seed,
                 smooth,
+                diffuse,
                 output,
             },
         ),
@@ -56,6 +58,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
             shard,
             every,
             dropout,
+            diffuse,
             output,
         } => montecarlo::run(
             plants,
@@ -68,6 +71,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 shard,
                 every,
                 dropout,
+                diffuse,
                 output,
             },
         ),
@@ -79,6 +83,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
             filter,
             params,
             seed,
+            diffuse,
             output,
         } => tune::run(
             plants,
@@ -89,6 +94,7 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 filter,
                 params,
                 seed,
+                diffuse,
                 output,
             },
         ),

@@ -39,6 +39,8 @@ pub struct CampaignArgs {
     pub every: usize,
     /// Drop each measurement component with this probability.
     pub dropout: f64,
+    /// `--diffuse` states, as given.
+    pub diffuse: Vec<String>,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -207,7 +209,8 @@ pub fn finish(summary: &Summary, dir: &Path) -> Result<()> {
 /// Runs `montecarlo`. Every check — the output directory, the checkpoint beside it, whether it
 /// resumes or extends — comes before the first run; nothing is touched if one fails.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
-    let plant = configure(plants, &args.plant)?;
+    let mut plant = configure(plants, &args.plant)?;
+    plant.set_diffuse(&args.diffuse)?;
     let (specs, skipped) = runner::choose_specs(plant.as_ref(), &args.filters, args.seed)?;
     if let Some(note) = &skipped {
         eprintln!("note: {note}");
@@ -222,6 +225,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
         filters: specs.iter().map(|s| s.label.clone()).collect(),
         every: args.every,
         dropout: args.dropout,
+        diffuse: args.diffuse.clone(),
     };
     let range = match shard {
         Some(s) => s.range(spec.runs),

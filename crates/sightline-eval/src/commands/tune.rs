@@ -31,6 +31,8 @@ pub struct TuneArgs {
     pub params: Vec<String>,
     /// Seed (the filter's own seed is derived from it and its label, as in `compare`).
     pub seed: u64,
+    /// `--diffuse` states, as given.
+    pub diffuse: Vec<String>,
     /// Output directory.
     pub output: PathBuf,
 }
@@ -38,7 +40,8 @@ pub struct TuneArgs {
 /// Runs `tune`.
 pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
     crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
-    let plant = configure(plants, &args.plant)?;
+    let mut plant = configure(plants, &args.plant)?;
+    plant.set_diffuse(&args.diffuse)?;
     let spec = FilterSpec::parse(&args.filter)?;
     // The same seed `compare --seed S` gives this label, so the likelihoods agree.
     let seed = filter_seed(args.seed, &spec.label);
@@ -68,6 +71,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
         data: Some(args.data.display().to_string()),
         dataset: Some(args.dataset.settings()),
         params: Some(args.params.clone()),
+        diffuse: args.diffuse.clone(),
         ..Settings::new("tune", plant.as_ref(), &args.plant.set, args.seed)
     });
     let dir = OutputDir::new(&args.output)?;
@@ -94,21 +98,31 @@ pub fn describe(tuned: &Tuned, model: &str, set: &[String]) -> String {
         "start",
         "maximum likelihood",
         "std error",
+        "95 % interval",
     ]);
     for (name, value) in &tuned.params {
-        let se = tuned
-            .std_errors
+        let se = tuned.std_errors.get(name).copied().flatten().map_or(
+            if tuned.notes.is_empty() {
+                "n/a (flat or not a maximum)".to_string()
+            } else {
+                "withheld (see the note)".to_string()
+            },
+            |v| format!("{v:.4e}"),
+        );
+        let interval = tuned
+            .intervals
             .get(name)
             .copied()
             .flatten()
-            .map_or("n/a (flat or not a maximum)".to_string(), |v| {
-                format!("{v:.4e}")
+            .map_or("n/a".to_string(), |[lo, hi]| {
+                format!("[{lo:.4e}, {hi:.4e}]")
             });
         table.add_row(vec![
             name.clone(),
             format!("{:.6e}", tuned.start.get(name).copied().unwrap_or(f64::NAN)),
             format!("{value:.6e}"),
             se,
+            interval,
         ]);
     }
     let mut out = format!("{table}\n");
@@ -122,6 +136,9 @@ pub fn describe(tuned: &Tuned, model: &str, set: &[String]) -> String {
         tuned.iterations,
         tuned.trace.len()
     ));
+    for note in &tuned.notes {
+        out.push_str(&format!("note: {note}\n"));
+    }
     let mut sets: Vec<String> = set
         .iter()
         .filter(|s| {
