@@ -14,7 +14,7 @@ use crate::error::{Error, Result};
 use crate::runner::Series;
 use crate::settings::Settings;
 use crate::summary::{FilterSummary, Status, Summary};
-use crate::verdict::{duration, sig};
+use crate::verdict::{self, duration, sig};
 
 /// Plot size in pixels.
 const WIDTH: u32 = 900;
@@ -449,7 +449,59 @@ fn band_text(b: Option<[f64; 2]>) -> String {
     })
 }
 
+/// What the verdict concluded about a consistency statistic, in a word for the table.
+fn judged(c: verdict::Consistency) -> &'static str {
+    match c {
+        verdict::Consistency::Consistent => "consistent",
+        verdict::Consistency::OverConfident => "over-confident",
+        verdict::Consistency::UnderConfident => "under-confident",
+        verdict::Consistency::Unknown => "–",
+    }
+}
+
+/// A filter's status as the table shows it.
+fn status_text(f: &FilterSummary) -> String {
+    match (f.status, f.diverged_at) {
+        (Status::Ok, _) => "ok".into(),
+        (Status::Failed, _) => "failed".into(),
+        (Status::Diverged, Some(k)) => format!("diverged at step {k}"),
+        (Status::Diverged, None) => "diverged".into(),
+    }
+}
+
+/// The paired comparison with the reference of `best`, as the table shows it.
+fn versus_best_text(summary: &Summary, f: &FilterSummary) -> String {
+    if summary.best.first() == Some(&f.label) {
+        return "best".into();
+    }
+    let Some(v) = &f.versus_best else {
+        return "–".into();
+    };
+    let tie = if v.tied { "tie: " } else { "" };
+    if v.measure == "rmse_all" {
+        format!(
+            "{tie}{:+} % [{}, {}]",
+            sig(100.0 * v.difference, 2),
+            sig(100.0 * v.interval[0], 2),
+            sig(100.0 * v.interval[1], 2)
+        )
+    } else {
+        format!(
+            "{tie}{:+} [{}, {}]",
+            sig(v.difference, 3),
+            sig(v.interval[0], 3),
+            sig(v.interval[1], 3)
+        )
+    }
+}
+
 /// The columns of the summary table (terminal and HTML), one row per filter.
+///
+/// The consistency columns show exactly what the verdict judges ([`verdict::state_consistency`],
+/// [`verdict::innovation_consistency`]), so that the two cannot disagree: on one dataset the
+/// shares of steps below / above the χ²(n) band against their limit (no ANEES band: one run's
+/// steps are correlated, so the χ²(N·n)/N band of independent steps does not apply), over runs
+/// the ANEES against χ²(M·n)/M.
 pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
     let campaign = summary.runs.is_some();
     let smoothed = summary
@@ -458,18 +510,36 @@ pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
         .any(|f| f.smoothed_rmse_all.is_some());
     let mut header = vec!["filter".to_string(), "status".to_string()];
     if summary.truth {
-        header.push("rmse_all".into());
+        header.push("rmse_all [95 % CI]".into());
         if campaign {
             header.push("± spread".into());
         }
         if smoothed {
             header.push("smoothed".into());
         }
-        header.push("ANEES [95 % band]".into());
-        header.push("NEES in band".into());
+    }
+    if summary.best_by.is_some() {
+        header.push(match summary.best_by.as_deref() {
+            Some("rmse_all") => "vs best (paired, 95 %)".into(),
+            _ => "log-lik vs best (paired, 95 %)".into(),
+        });
+    }
+    if summary.truth {
+        if campaign {
+            header.push("ANEES [95 % band]".into());
+            header.push("NEES in band".into());
+        } else {
+            header.push("ANEES".into());
+            header.push(format!(
+                "NEES below / above band (limit {:.0} %)",
+                100.0 * verdict::TAIL_LIMIT
+            ));
+        }
+        header.push("state".into());
     }
     header.push("ANIS [95 % band]".into());
     header.push("NIS in band".into());
+    header.push("innovations".into());
     if !campaign {
         header.push("white".into());
     }
@@ -482,26 +552,41 @@ pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
         .filters
         .iter()
         .map(|f: &FilterSummary| {
-            let mut row = vec![
-                f.label.clone(),
-                match f.status {
-                    Status::Ok => "ok".into(),
-                    Status::Failed => "failed".into(),
-                },
-            ];
+            let mut row = vec![f.label.clone(), status_text(f)];
             if summary.truth {
-                row.push(opt(f.rmse_all, 4));
+                row.push(format!(
+                    "{}{}",
+                    opt(f.rmse_all, 4),
+                    band_text(f.rmse_all_ci)
+                ));
                 if campaign {
                     row.push(opt(f.rmse_all_spread, 2));
                 }
                 if smoothed {
                     row.push(opt(f.smoothed_rmse_all, 4));
                 }
-                row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
-                row.push(share(f.nees_in_band));
+            }
+            if summary.best_by.is_some() {
+                row.push(versus_best_text(summary, f));
+            }
+            if summary.truth {
+                if campaign {
+                    row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
+                    row.push(share(f.nees_in_band));
+                } else {
+                    row.push(opt(f.anees, 3));
+                    row.push(match f.nees_tails {
+                        Some([below, above]) => {
+                            format!("{} / {}", share(Some(below)), share(Some(above)))
+                        }
+                        None => "–".into(),
+                    });
+                }
+                row.push(judged(verdict::state_consistency(f, campaign)).into());
             }
             row.push(format!("{}{}", opt(f.anis, 3), band_text(f.anis_band)));
             row.push(share(f.nis_in_band));
+            row.push(judged(verdict::innovation_consistency(f)).into());
             if !campaign {
                 row.push(
                     match f.whiteness.as_ref().and_then(|w| w.white) {
