@@ -94,8 +94,9 @@ pub fn build_filters(
         .collect()
 }
 
-/// Parses filter spec strings; with none, every kind that applies to the plant (`kf` only for
-/// linear plants). Duplicated labels are rejected since the label identifies a filter.
+/// Parses filter spec strings, expanding sweeps (`key=a|b|c`, [`FilterSpec::expand`]); with
+/// none, every kind that applies to the plant (`kf` only for linear plants). Duplicated labels
+/// are rejected since the label identifies a filter.
 pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterSpec>> {
     let parsed: Vec<FilterSpec> = if specs.is_empty() {
         sightline_filters::default_kinds(plant.is_linear())
@@ -103,10 +104,11 @@ pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterS
             .map(FilterSpec::parse)
             .collect::<Result<_, _>>()?
     } else {
-        specs
-            .iter()
-            .map(|s| FilterSpec::parse(s))
-            .collect::<Result<_, _>>()?
+        let mut all = Vec::new();
+        for s in specs {
+            all.extend(FilterSpec::expand(s)?);
+        }
+        all
     };
     for (i, s) in parsed.iter().enumerate() {
         if parsed[..i].iter().any(|p| p.label == s.label) {

@@ -524,8 +524,8 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     let shown_already = notes.len();
     let context = ResultContext {
         title: format!(
-            "Sightline: {} filters on {} ({})",
-            specs.len(),
+            "Sightline: {} on {} ({})",
+            verdict::count(specs.len(), "filter"),
             plant.name(),
             args.data.display()
         ),

@@ -68,6 +68,10 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        log_x: false,
+        y_range: None,
+        clipped: Vec::new(),
+        gaps: Vec::new(),
         clock: None,
         caption: "Average over the runs of each step's NEES; a consistent filter keeps about 95 % \
                   of the steps inside the band (Bar-Shalom et al. 2001, §5.4)."
@@ -91,6 +95,10 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        log_x: false,
+        y_range: None,
+        clipped: Vec::new(),
+        gaps: Vec::new(),
         clock: None,
         caption: "Average over the runs of each step's NIS against the band of an average of \
                   M χ²(m) values."
