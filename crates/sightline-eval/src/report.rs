@@ -863,16 +863,45 @@ fn clip_diverged(plot: &mut LinePlot, diverged: &[String]) {
     }
     let (lo, hi) = finite_range(values.into_iter());
     plot.y_range = Some((lo, hi));
-    for l in plot.lines.iter_mut().filter(|l| is_diverged(&l.name)) {
-        if let Some(cut) = l
-            .points
-            .iter()
-            .position(|p| p.1.is_finite() && !(lo..=hi).contains(&p.1))
-        {
-            let (x, y) = l.points[cut];
+    let names: Vec<(String, RGBColor)> = plot
+        .lines
+        .iter()
+        .filter(|l| l.name != "truth")
+        .map(|l| (l.name.clone(), l.colour))
+        .collect();
+    for (k, (name, colour)) in names.iter().enumerate() {
+        if !is_diverged(name) {
+            continue;
+        }
+        let outside = |y: f64| y.is_finite() && !(lo..=hi).contains(&y);
+        let line = plot.lines.iter_mut().find(|l| &l.name == name);
+        let line_cut = line
+            .as_ref()
+            .and_then(|l| l.points.iter().position(|p| outside(p.1)));
+        let band = unnamed.get(k).map(|&a| &mut plot.areas[a]);
+        let band_cut = band
+            .as_ref()
+            .and_then(|b| b.points.iter().position(|p| outside(p.1) || outside(p.2)));
+        // The curve and its band stop where the first of them leaves the frame.
+        let cut = match (line_cut, band_cut) {
+            (Some(a), Some(b)) => a.min(b),
+            (Some(a), None) | (None, Some(a)) => a,
+            (None, None) => continue,
+        };
+        let mut marker = None;
+        if let Some(l) = line {
+            marker = l.points.get(cut).copied();
             l.points.truncate(cut);
+        }
+        if let Some(b) = band {
+            if band_cut == Some(cut) {
+                marker = b.points.get(cut).map(|p| (p.0, p.2));
+            }
+            b.points.truncate(cut);
+        }
+        if let Some((x, y)) = marker {
             plot.clipped
-                .push((l.name.clone(), l.colour, (x, y.clamp(lo, hi))));
+                .push((name.clone(), *colour, (x, y.clamp(lo, hi))));
         }
     }
 }
