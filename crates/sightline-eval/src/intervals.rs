@@ -255,7 +255,7 @@ pub fn block_length(x: &[f64]) -> usize {
         g0 += 2.0 * l * rk;
     }
     let d = 4.0 / 3.0 * g0 * g0;
-    if !(d > 0.0) {
+    if d.is_nan() || d <= 0.0 {
         return 1;
     }
     let b = (2.0 * g * g / d).cbrt() * nf.cbrt();
@@ -376,7 +376,7 @@ pub fn paired_rmse(other: &StepSums, reference: &StepSums) -> Option<Paired> {
         });
     }
     let (to, tr) = (other.total(), reference.total());
-    if !(tr > 0.0) {
+    if tr.is_nan() || tr <= 0.0 {
         return None;
     }
     let difference = (to / tr).sqrt() - 1.0;
@@ -499,7 +499,7 @@ pub fn campaign_rmse_interval(mse: &RunMoments) -> Option<[f64; 2]> {
 /// the reference's mean MSE over those runs: relative RMSE difference √(1 + d̄/m̄_ref) − 1 with
 /// the t interval of d̄ mapped the same way (m̄_ref held fixed, first order).
 pub fn campaign_paired(d: &RunMoments, reference_mean_mse: f64) -> Option<Paired> {
-    if d.count < 2 || !(reference_mean_mse > 0.0) {
+    if d.count < 2 || reference_mean_mse.is_nan() || reference_mean_mse <= 0.0 {
         return None;
     }
     let rel = |x: f64| (1.0 + x / reference_mean_mse).max(0.0).sqrt() - 1.0;

@@ -79,16 +79,16 @@ fn rank_with(
     };
     let reference_label = filters[r].label.clone();
     let mut group: Vec<(f64, String)> = vec![(0.0, reference_label.clone())];
-    for i in 0..filters.len() {
-        if i == r || filters[i].status != Status::Ok {
+    for (i, f) in filters.iter_mut().enumerate() {
+        if i == r || f.status != Status::Ok {
             continue;
         }
         let Some(p) = compare(i, r) else { continue };
         if p.tied {
             // Order by closeness to the reference.
-            group.push((p.difference.abs(), filters[i].label.clone()));
+            group.push((p.difference.abs(), f.label.clone()));
         }
-        filters[i].versus_best = Some(VersusBest {
+        f.versus_best = Some(VersusBest {
             reference: reference_label.clone(),
             measure: measure.name().to_string(),
             difference: p.difference,

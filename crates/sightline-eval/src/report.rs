@@ -526,16 +526,17 @@ fn versus_best_text(summary: &Summary, f: &FilterSummary) -> String {
         return "–".into();
     };
     let tie = if v.tied { "tie: " } else { "" };
+    let sign = if v.difference > 0.0 { "+" } else { "" };
     if v.measure == "rmse_all" {
         format!(
-            "{tie}{:+} % [{}, {}]",
+            "{tie}{sign}{} % [{}, {}]",
             sig(100.0 * v.difference, 2),
             sig(100.0 * v.interval[0], 2),
             sig(100.0 * v.interval[1], 2)
         )
     } else {
         format!(
-            "{tie}{:+} [{}, {}]",
+            "{tie}{sign}{} [{}, {}]",
             sig(v.difference, 3),
             sig(v.interval[0], 3),
             sig(v.interval[1], 3)
