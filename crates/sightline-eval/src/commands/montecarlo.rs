@@ -131,6 +131,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
     }
     plots.push(Plot::Lines(nees));
     plots.push(Plot::Lines(nis));
+    plots.extend(report::accuracy_cost_plot(summary));
     plots.extend(report::bar_plots(summary));
     plots
 }
@@ -179,8 +180,8 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
         totals.campaign.seed, totals.campaign.model, totals.campaign.steps
     ));
     let title = format!(
-        "Sightline Monte Carlo: {} filters on {}, {} runs × {} steps",
-        totals.filters.len(),
+        "Sightline Monte Carlo: {} on {}, {} runs × {} steps",
+        crate::verdict::count(totals.filters.len(), "filter"),
         totals.campaign.model,
         totals.runs_covered(),
         totals.campaign.steps
