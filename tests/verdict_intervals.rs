@@ -58,28 +58,13 @@ fn specs(texts: &[&str]) -> Vec<FilterSpec> {
 #[test]
 fn the_single_run_interval_covers_the_exact_expected_rmse() {
     let plant = cv();
-    let n = plant.states().len() as f64;
     let (datasets, steps) = (150u64, 400usize);
     let mut covered = 0;
     for seed in 0..datasets {
         let data = plant
             .simulate(steps, 1000 + seed, &SimOptions::default())
             .unwrap();
-        let filters = runner::build_filters(plant.as_ref(), &specs(&["ekf"]), 0).unwrap();
-        let mut trace = TraceSum(0.0);
-        let config = RunConfig {
-            series_points: 0,
-            ..RunConfig::default()
-        };
-        let outcome = runner::run(
-            plant.as_ref(),
-            filters,
-            &mut MemorySource::new(&data),
-            &config,
-            &mut trace,
-        )
-        .unwrap();
-        let expected = (trace.0 / (steps as f64 * n)).sqrt();
+        let (expected, outcome) = expected_rmse(plant.as_ref(), &data);
         let summary = summarise(plant.as_ref(), &outcome);
         let [lo, hi] = summary.filters[0].rmse_all_ci.expect("an interval");
         let rmse = summary.filters[0].rmse_all.unwrap();
@@ -99,25 +84,10 @@ fn the_single_run_interval_covers_the_exact_expected_rmse() {
 #[test]
 fn the_campaign_interval_covers_the_exact_expected_rmse() {
     let plant = cv();
-    let n = plant.states().len() as f64;
     let (campaigns, runs, steps) = (120u64, 12u64, 40usize);
     // P(k) of a linear filter does not depend on the data: one run gives it for all.
     let data = plant.simulate(steps, 1, &SimOptions::default()).unwrap();
-    let filters = runner::build_filters(plant.as_ref(), &specs(&["ekf"]), 0).unwrap();
-    let mut trace = TraceSum(0.0);
-    let config = RunConfig {
-        series_points: 0,
-        ..RunConfig::default()
-    };
-    runner::run(
-        plant.as_ref(),
-        filters,
-        &mut MemorySource::new(&data),
-        &config,
-        &mut trace,
-    )
-    .unwrap();
-    let expected = (trace.0 / (steps as f64 * n)).sqrt();
+    let (expected, _) = expected_rmse(plant.as_ref(), &data);
     let mut covered = 0;
     for c in 0..campaigns {
         let spec = CampaignSpec {
@@ -166,18 +136,7 @@ fn identical_filters_tie_and_a_filter_with_noise_wrong_by_100_is_excluded() {
     let mut bad = FilterSpec::parse("iekf").unwrap();
     bad.label = "ekf, q × 100".into();
     filters.push(wrong.build_filter(&bad, 0).unwrap());
-    let config = RunConfig {
-        series_points: 0,
-        ..RunConfig::default()
-    };
-    let outcome = runner::run(
-        plant.as_ref(),
-        filters,
-        &mut MemorySource::new(&data),
-        &config,
-        &mut runner::NoObserver,
-    )
-    .unwrap();
+    let outcome = run(plant.as_ref(), filters, &data, &mut runner::NoObserver);
     let summary = summarise(plant.as_ref(), &outcome);
     let mut best = summary.best.clone();
     best.sort();
@@ -240,14 +199,7 @@ fn without_truth_the_log_likelihood_ranks_with_its_own_interval() {
     let mut bad = FilterSpec::parse("ckf").unwrap();
     bad.label = "ckf, r × 100".into();
     filters.push(wrong.build_filter(&bad, 0).unwrap());
-    let outcome = runner::run(
-        plant.as_ref(),
-        filters,
-        &mut MemorySource::new(&data),
-        &RunConfig::default(),
-        &mut runner::NoObserver,
-    )
-    .unwrap();
+    let outcome = run(plant.as_ref(), filters, &data, &mut runner::NoObserver);
     let summary = summarise(plant.as_ref(), &outcome);
     assert_eq!(summary.best_by.as_deref(), Some("log_likelihood"));
     let mut best = summary.best.clone();

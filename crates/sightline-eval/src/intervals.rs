@@ -362,28 +362,52 @@ fn differences(a: &StepSums, b: &StepSums) -> Vec<f64> {
         .collect()
 }
 
-/// Paired moving-block bootstrap of the relative RMSE difference of `other` against
-/// `reference`, both per-step squared-error sums over the same steps.
-pub fn paired_rmse(other: &StepSums, reference: &StepSums) -> Option<Paired> {
+/// Settles a comparison that needs no resampling: `Err(None)` for series that do not pair up
+/// (different lengths, fewer than two steps), `Err(Some(tie))` for bitwise-equal ones.
+fn unsettled(other: &StepSums, reference: &StepSums) -> Result<(), Option<Paired>> {
     if other.units().len() != reference.units().len() || other.steps() < 2 {
-        return None;
+        return Err(None);
     }
     if identical(other, reference) {
-        return Some(Paired {
+        return Err(Some(Paired {
             difference: 0.0,
             interval: [0.0, 0.0],
             tied: true,
-        });
+        }));
+    }
+    Ok(())
+}
+
+/// The paired result from the point `difference` and its bootstrap replicates: tied when the
+/// interval holds 0 or lies within ±`rounding`.
+fn paired_from(difference: f64, replicates: Vec<f64>, rounding: f64) -> Option<Paired> {
+    let interval = percentile_interval(replicates)?;
+    let within_rounding = interval[0] > -rounding && interval[1] < rounding;
+    Some(Paired {
+        difference,
+        interval,
+        tied: within_rounding || (interval[0] <= 0.0 && interval[1] >= 0.0),
+    })
+}
+
+/// The paired resamples of two aligned series, blocks chosen from their per-unit differences.
+fn paired_resamples(other: &StepSums, reference: &StepSums) -> Vec<Vec<f64>> {
+    let block = block_length(&differences(other, reference));
+    let seed = data_seed(&[other.units(), reference.units()]);
+    resample(&[other, reference], block, seed)
+}
+
+/// Paired moving-block bootstrap of the relative RMSE difference of `other` against
+/// `reference`, both per-step squared-error sums over the same steps.
+pub fn paired_rmse(other: &StepSums, reference: &StepSums) -> Option<Paired> {
+    if let Err(settled) = unsettled(other, reference) {
+        return settled;
     }
     let (to, tr) = (other.total(), reference.total());
     if tr.is_nan() || tr <= 0.0 {
         return None;
     }
-    let difference = (to / tr).sqrt() - 1.0;
-    let d = differences(other, reference);
-    let block = block_length(&d);
-    let seed = data_seed(&[other.units(), reference.units()]);
-    let reps = resample(&[other, reference], block, seed);
+    let reps = paired_resamples(other, reference);
     let ratios = reps[0]
         .iter()
         .zip(&reps[1])
@@ -395,42 +419,19 @@ pub fn paired_rmse(other: &StepSums, reference: &StepSums) -> Option<Paired> {
             }
         })
         .collect();
-    let interval = percentile_interval(ratios)?;
-    let rounding = interval[0] > -ROUNDING && interval[1] < ROUNDING;
-    Some(Paired {
-        difference,
-        interval,
-        tied: rounding || (interval[0] <= 0.0 && interval[1] >= 0.0),
-    })
+    paired_from((to / tr).sqrt() - 1.0, ratios, ROUNDING)
 }
 
 /// Paired moving-block bootstrap of the total log-likelihood difference `other − reference`
 /// from the per-step increments over the same steps.
 pub fn paired_log_likelihood(other: &StepSums, reference: &StepSums) -> Option<Paired> {
-    if other.units().len() != reference.units().len() || other.steps() < 2 {
-        return None;
+    if let Err(settled) = unsettled(other, reference) {
+        return settled;
     }
-    if identical(other, reference) {
-        return Some(Paired {
-            difference: 0.0,
-            interval: [0.0, 0.0],
-            tied: true,
-        });
-    }
-    let difference = other.total() - reference.total();
-    let d = differences(other, reference);
-    let block = block_length(&d);
-    let seed = data_seed(&[other.units(), reference.units()]);
-    let reps = resample(&[other, reference], block, seed);
+    let reps = paired_resamples(other, reference);
     let diffs = reps[0].iter().zip(&reps[1]).map(|(o, r)| o - r).collect();
-    let interval = percentile_interval(diffs)?;
-    let scale = ROUNDING * reference.total().abs().max(1.0);
-    let rounding = interval[0] > -scale && interval[1] < scale;
-    Some(Paired {
-        difference,
-        interval,
-        tied: rounding || (interval[0] <= 0.0 && interval[1] >= 0.0),
-    })
+    let rounding = ROUNDING * reference.total().abs().max(1.0);
+    paired_from(other.total() - reference.total(), diffs, rounding)
 }
 
 /// The two-sided [`LEVEL`] quantile of Student's t with `dof` degrees of freedom.
@@ -549,6 +550,29 @@ mod tests {
             let c = TDistribution::critical(dof).unwrap();
             assert!((c - t).abs() < 1e-3, "dof {dof}: {c}");
         }
+    }
+
+    #[test]
+    fn block_length_approaches_its_closed_form_on_an_ar1() {
+        // AR(1) x(k) = φ·x(k−1) + e(k), unit innovations: R(k) = φ^|k|/(1 − φ²), so
+        // ĝ(0) → 1/(1 − φ)², Ĝ → 2φ/((1 − φ²)(1 − φ)²) and the optimal block length of the
+        // circular/moving-block bootstrap is (2G²/D)^{1/3}N^{1/3} = (6φ²/(1 − φ²)²)^{1/3}N^{1/3}
+        // (Politis & White 2004, with D = 4/3·g(0)²): 29.9 for φ = 0.5, N = 10 000.
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let (phi, n) = (0.5f64, 10_000usize);
+        let exact = (6.0 * phi * phi / (1.0 - phi * phi).powi(2)).cbrt() * (n as f64).cbrt();
+        let mut rng = rand::rngs::Xoshiro256PlusPlus::seed_from_u64(3);
+        let mut x = vec![0.0; n];
+        for k in 1..n {
+            let e: f64 = StandardNormal.sample(&mut rng);
+            x[k] = phi * x[k - 1] + e;
+        }
+        let b = block_length(&x) as f64;
+        assert!(
+            (b - exact).abs() < 0.35 * exact,
+            "b = {b}, closed form {exact}"
+        );
     }
 
     #[test]
