@@ -55,6 +55,39 @@ fn specs(texts: &[&str]) -> Vec<FilterSpec> {
         .collect()
 }
 
+/// Runs `filters` of `plant` over `data` without plot series, handing the steps to `observer`.
+fn run(
+    plant: &dyn AnyPlant,
+    filters: Vec<Box<dyn Filter>>,
+    data: &sightline::eval::dataset::Dataset,
+    observer: &mut dyn Observer,
+) -> runner::RunOutcome {
+    let config = RunConfig {
+        series_points: 0,
+        ..RunConfig::default()
+    };
+    runner::run(
+        plant,
+        filters,
+        &mut MemorySource::new(data),
+        &config,
+        observer,
+    )
+    .unwrap()
+}
+
+/// √((1/N)·Σₖ tr P(k)/n) of the EKF on `data`: the exact expected `rmse_all` on a linear plant.
+fn expected_rmse(
+    plant: &dyn AnyPlant,
+    data: &sightline::eval::dataset::Dataset,
+) -> (f64, runner::RunOutcome) {
+    let filters = runner::build_filters(plant, &specs(&["ekf"]), 0).unwrap();
+    let mut trace = TraceSum(0.0);
+    let outcome = run(plant, filters, data, &mut trace);
+    let per = data.records.len() as f64 * plant.states().len() as f64;
+    ((trace.0 / per).sqrt(), outcome)
+}
+
 #[test]
 fn the_single_run_interval_covers_the_exact_expected_rmse() {
     let plant = cv();
