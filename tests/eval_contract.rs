@@ -14,6 +14,7 @@ const FILTER_KEYS: &[&str] = &[
     "error",
     "rmse",
     "rmse_all",
+    "rmse_all_ci",
     "anees",
     "nees_in_band",
     "anis",
@@ -34,7 +35,16 @@ fn check_filter_entry(f: &Value, states: &[&str], truth: bool) {
     }
     assert!(f["label"].is_string() && f["kind"].is_string());
     let status = f["status"].as_str().unwrap();
-    assert!(status == "ok" || status == "failed");
+    assert!(status == "ok" || status == "failed" || status == "diverged");
+    // rmse_all_ci: [lo, hi] around rmse_all with truth, null without.
+    match f["rmse_all_ci"].as_array() {
+        Some(ci) => {
+            let (lo, hi) = (ci[0].as_f64().unwrap(), ci[1].as_f64().unwrap());
+            let r = f["rmse_all"].as_f64().unwrap();
+            assert!(lo <= r && r <= hi, "{f}");
+        }
+        None => assert!(f["rmse_all_ci"].is_null() && (!truth || status == "failed")),
+    }
     assert!(f["error"].is_string() || f["error"].is_null());
     for k in [
         "rmse_all",
@@ -118,6 +128,13 @@ fn compare_outputs_follow_the_contract() {
     assert_eq!(summary["model"], "pendulum");
     assert_eq!(summary["steps"], 120);
     assert!(summary["verdict"].is_string());
+    // best: labels of the filters indistinguishable from the most accurate, that one first.
+    let best = summary["best"].as_array().unwrap();
+    assert!(
+        !best.is_empty() && best.iter().all(|b| b.is_string()),
+        "{best:?}"
+    );
+    assert_eq!(summary["best_by"], "rmse_all");
     let filters = summary["filters"].as_array().unwrap();
     assert_eq!(filters.len(), 2);
     assert_eq!(filters[1]["label"], "ukf:alpha=0.5,beta=2");

@@ -28,6 +28,7 @@ use crate::chi2;
 use crate::dataset::read::MemorySource;
 use crate::error::{Error, Result};
 use crate::exact_sum::ExactSum;
+use crate::intervals::RunMoments;
 use crate::metrics::StepMetrics;
 use crate::plant::AnyPlant;
 use crate::runner::{self, Observer, RunConfig};
@@ -178,6 +179,40 @@ pub struct FilterTotals {
     pub timed_steps: u64,
     /// Summed counters.
     pub diagnostics: DiagnosticsSummary,
+    /// Moments over finished runs of each run's mean squared error (`rmse_all`²), for the
+    /// interval of `rmse_all` (absent in files written before it existed).
+    #[serde(default)]
+    pub mse_run: RunMoments,
+    /// Finished runs in which the filter diverged ([`crate::divergence`]).
+    #[serde(default)]
+    pub diverged_runs: u64,
+    /// The divergence of the lowest run index: run, step and reason.
+    #[serde(default)]
+    pub first_divergence: Option<(u64, u64, String)>,
+}
+
+/// Paired moments of the per-run difference of mean squared error of two filters, over the runs
+/// both finished.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct PairTotals {
+    /// Index of the first filter (spec order).
+    pub a: usize,
+    /// Index of the second filter (`b > a`).
+    pub b: usize,
+    /// Moments of `mse_a − mse_b`.
+    pub difference: RunMoments,
+    /// Σ of `mse_b` over the same runs (the reference scale when `b` is the reference).
+    pub mse_b: ExactSum,
+    /// Σ of `mse_a` over the same runs.
+    pub mse_a: ExactSum,
+}
+
+impl PairTotals {
+    fn merge(&mut self, other: &PairTotals) {
+        self.difference.merge(&other.difference);
+        self.mse_a.merge(&other.mse_a);
+        self.mse_b.merge(&other.mse_b);
+    }
 }
 
 impl FilterTotals {
@@ -199,6 +234,20 @@ impl FilterTotals {
             seconds: ExactSum::default(),
             timed_steps: 0,
             diagnostics: DiagnosticsSummary::default(),
+            mse_run: RunMoments::default(),
+            diverged_runs: 0,
+            first_divergence: None,
+        }
+    }
+
+    /// Keeps the divergence of the lowest run index.
+    fn note_divergence(&mut self, run: u64, step: u64, reason: &str) {
+        if self
+            .first_divergence
+            .as_ref()
+            .is_none_or(|(r, _, _)| run < *r)
+        {
+            self.first_divergence = Some((run, step, reason.to_string()));
         }
     }
 
@@ -239,6 +288,11 @@ impl FilterTotals {
         self.seconds.merge(&other.seconds);
         self.timed_steps += other.timed_steps;
         self.diagnostics.add(&other.diagnostics);
+        self.mse_run.merge(&other.mse_run);
+        self.diverged_runs += other.diverged_runs;
+        if let Some((run, step, reason)) = &other.first_divergence {
+            self.note_divergence(*run, *step, reason);
+        }
         Ok(())
     }
 }
@@ -267,6 +321,10 @@ pub struct Totals {
     /// the library without them). Its `shard` always names [`Totals::shard`]
     /// ([`Totals::set_shard`]).
     pub settings: Option<Settings>,
+    /// Paired per-run differences of every pair of filters, for `best` (absent in files
+    /// written before it existed: no ranking then).
+    #[serde(default)]
+    pub pairs: Vec<PairTotals>,
 }
 
 /// The PCRLB's share of the totals: the information terms of every run, summed exactly so that
@@ -370,6 +428,7 @@ struct FilterRun {
     seconds: f64,
     steps: u64,
     diagnostics: DiagnosticsSummary,
+    divergence: Option<crate::divergence::Divergence>,
 }
 
 /// Collects each filter's per-step NEES and NIS in one run.
@@ -457,6 +516,7 @@ fn one_run(
             seconds: f.metrics.seconds,
             steps: f.metrics.steps,
             diagnostics: f.diagnostics.into(),
+            divergence: f.divergence.clone(),
         })
         .collect();
     Ok((runs, terms))
@@ -468,6 +528,22 @@ fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
     }
     totals.covered.push([i, i + 1]);
     join_ranges(&mut totals.covered);
+    let mse: Vec<Option<f64>> = runs
+        .iter()
+        .map(|r| {
+            r.error
+                .is_none()
+                .then(|| r.rmse_all.map(|x| x * x))
+                .flatten()
+        })
+        .collect();
+    for p in totals.pairs.iter_mut() {
+        if let (Some(Some(a)), Some(Some(b))) = (mse.get(p.a), mse.get(p.b)) {
+            p.difference.add(a - b);
+            p.mse_a.add(*a);
+            p.mse_b.add(*b);
+        }
+    }
     for (t, r) in totals.filters.iter_mut().zip(runs) {
         t.seconds.add(r.seconds);
         t.timed_steps += r.steps;
@@ -484,6 +560,11 @@ fn add_run(totals: &mut Totals, i: u64, (runs, terms): RunResult) {
         let rmse = r.rmse_all.unwrap_or(f64::NAN);
         t.rmse_run.add(rmse);
         t.rmse_run_sq.add(rmse * rmse);
+        t.mse_run.add(rmse * rmse);
+        if let Some(d) = &r.divergence {
+            t.diverged_runs += 1;
+            t.note_divergence(i, d.step, &d.reason);
+        }
         for (a, v) in t.nees_step.iter_mut().zip(&r.nees) {
             a.add(*v);
         }
@@ -562,6 +643,14 @@ pub fn empty_totals(
             }
         }),
         settings: None,
+        pairs: (0..specs.len())
+            .flat_map(|a| (a + 1..specs.len()).map(move |b| (a, b)))
+            .map(|(a, b)| PairTotals {
+                a,
+                b,
+                ..PairTotals::default()
+            })
+            .collect(),
     })
 }
 
@@ -823,6 +912,14 @@ pub fn merge_named(parts: Vec<(String, Totals)>) -> Result<Totals> {
         for (a, b) in total.filters.iter_mut().zip(&part.filters) {
             a.merge(b)?;
         }
+        if total.pairs.len() == part.pairs.len() {
+            for (a, b) in total.pairs.iter_mut().zip(&part.pairs) {
+                a.merge(b);
+            }
+        } else {
+            // A shard written before paired totals existed: no ranking for the merge.
+            total.pairs.clear();
+        }
         seen.push((name, part.shard, part.covered.clone()));
         total.covered.extend(part.covered.iter().copied());
         join_ranges(&mut total.covered);
@@ -953,8 +1050,24 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
     FilterSummary {
         label: t.label.clone(),
         kind: t.kind.clone(),
-        status: if ok { Status::Ok } else { Status::Failed },
+        status: match (ok, t.diverged_runs) {
+            (false, _) => Status::Failed,
+            (true, 0) => Status::Ok,
+            (true, _) => Status::Diverged,
+        },
         error,
+        rmse_all_ci: if ok && t.mse_run.count == m_runs {
+            crate::intervals::campaign_rmse_interval(&t.mse_run)
+        } else {
+            None
+        },
+        diverged_at: t.first_divergence.as_ref().map(|(_, step, _)| *step),
+        divergence: t
+            .first_divergence
+            .as_ref()
+            .map(|(run, _, reason)| format!("run {run}: {reason}")),
+        diverged_runs: Some(t.diverged_runs),
+        versus_best: None,
         rmse,
         rmse_all,
         anees,
@@ -982,6 +1095,26 @@ fn filter_summary(totals: &Totals, t: &FilterTotals) -> FilterSummary {
     }
 }
 
+/// The paired comparison of filter `i` with the reference `r` over the runs both finished.
+fn paired(totals: &Totals, i: usize, r: usize) -> Option<crate::intervals::Paired> {
+    let (a, b) = (i.min(r), i.max(r));
+    let p = totals.pairs.iter().find(|p| p.a == a && p.b == b)?;
+    let count = p.difference.count;
+    if count == 0 {
+        return None;
+    }
+    // d = mse_a − mse_b; the comparison wants mse_i − mse_r.
+    let (d, reference) = if i == a {
+        (p.difference.clone(), p.mse_b.value() / count as f64)
+    } else {
+        let mut flipped = p.difference.clone();
+        flipped.sum = ExactSum::default();
+        flipped.sum.add(-p.difference.sum.value());
+        (flipped, p.mse_a.value() / count as f64)
+    };
+    crate::intervals::campaign_paired(&d, reference)
+}
+
 /// What an output without runs is: a shard with no run of the campaign in it.
 fn empty_text(totals: &Totals) -> String {
     match totals.shard {
@@ -995,11 +1128,16 @@ fn empty_text(totals: &Totals) -> String {
 
 /// The `summary.json` of a campaign (or of the runs a shard covers).
 pub fn summarise(totals: &Totals) -> Summary {
-    let filters: Vec<FilterSummary> = totals
+    let mut filters: Vec<FilterSummary> = totals
         .filters
         .iter()
         .map(|t| filter_summary(totals, t))
         .collect();
+    let (best, best_by) = if totals.pairs.is_empty() && totals.filters.len() > 1 {
+        (Vec::new(), None)
+    } else {
+        crate::ranking::rank_campaign(&mut filters, &|i, r| paired(totals, i, r))
+    };
     let runs = totals.runs_covered();
     let bound = totals
         .pcrlb
@@ -1012,7 +1150,7 @@ pub fn summarise(totals: &Totals) -> Summary {
             empty_text(totals)
         )
     } else {
-        verdict::verdict(&filters, true, Some(runs), totals.campaign.steps)
+        verdict::verdict(&filters, &best, true, Some(runs), totals.campaign.steps)
     };
     Summary {
         command: "montecarlo".into(),
@@ -1021,6 +1159,8 @@ pub fn summarise(totals: &Totals) -> Summary {
         settings: totals.settings.clone(),
         ignored_columns: Vec::new(),
         truth: true,
+        best,
+        best_by,
         criteria: summary::criteria(true, true),
         filters,
         verdict,
@@ -1061,6 +1201,7 @@ mod tests {
             filters: Vec::new(),
             pcrlb: None,
             settings: None,
+            pairs: Vec::new(),
         };
         assert_eq!(uncovered(&totals, 0..12), vec![3..5, 6..8, 10..12]);
         assert_eq!(uncovered(&totals, 2..9), vec![3..5, 6..8]);

@@ -17,6 +17,7 @@ use serde::{Deserialize, Serialize};
 use sightline_filters::Innovation;
 
 use crate::chi2::{self, Band};
+use crate::intervals::StepSums;
 
 /// Lags of the whiteness test unless configured otherwise.
 pub const DEFAULT_WHITENESS_LAGS: usize = 20;
@@ -281,6 +282,11 @@ pub struct FilterMetrics {
     pub log_likelihood: f64,
     /// Seconds spent in predict + update.
     pub seconds: f64,
+    /// Per-step squared error summed over the states, for the interval of `rmse_all` and the
+    /// paired comparisons ([`crate::intervals`]).
+    pub squared_errors: StepSums,
+    /// Per-step log-likelihood increments, for the paired comparison without truth.
+    pub log_likelihoods: StepSums,
     whiteness: Whiteness,
     nees_band: Option<Band>,
     nis_bands: Vec<Band>,
@@ -305,6 +311,8 @@ impl FilterMetrics {
             nis_inside: 0,
             log_likelihood: 0.0,
             seconds: 0.0,
+            squared_errors: StepSums::new(),
+            log_likelihoods: StepSums::new(),
             whiteness: Whiteness::new(measurements, whiteness_lags),
             nees_band: chi2::band(states),
             nis_bands: chi2::bands_up_to(measurements),
@@ -319,9 +327,12 @@ impl FilterMetrics {
 
     /// Records a step's squared errors and NEES (`error` = truth − mean).
     pub fn add_error(&mut self, error: &[f64], nees: f64) {
+        let mut step = 0.0;
         for (s, e) in self.sse.iter_mut().zip(error) {
             *s += e * e;
+            step += e * e;
         }
+        self.squared_errors.push(step);
         self.nees_sum += nees;
         self.nees_steps += 1;
         if let Some(b) = self.nees_band {
@@ -339,6 +350,7 @@ impl FilterMetrics {
     /// turned out unusable.
     pub fn forget_truth(&mut self) {
         self.sse.iter_mut().for_each(|s| *s = 0.0);
+        self.squared_errors = StepSums::new();
         self.nees_sum = 0.0;
         self.nees_steps = 0;
         self.nees_inside = 0;
@@ -356,6 +368,7 @@ impl FilterMetrics {
     ) -> Option<(f64, usize)> {
         self.steps += 1;
         self.log_likelihood += log_likelihood_increment;
+        self.log_likelihoods.push(log_likelihood_increment);
         let m = self.standardised.len();
         let mut result = None;
         match innovation {

@@ -14,7 +14,7 @@ use crate::error::{Error, Result};
 use crate::runner::Series;
 use crate::settings::Settings;
 use crate::summary::{FilterSummary, Status, Summary};
-use crate::verdict::{duration, sig};
+use crate::verdict::{self, duration, sig};
 
 /// Plot size in pixels.
 const WIDTH: u32 = 900;
@@ -67,7 +67,7 @@ pub struct Area {
 pub type Dots = (String, RGBColor, Vec<(f64, f64)>);
 
 /// A line plot with optional bands and dots.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Default)]
 pub struct LinePlot {
     /// Identifier (used in `data-plot`).
     pub id: String,
@@ -85,6 +85,15 @@ pub struct LinePlot {
     pub dots: Vec<Dots>,
     /// Plot log₁₀ of the values (for NEES/NIS spanning decades).
     pub log_y: bool,
+    /// Plot log₁₀ of the x values (cost).
+    pub log_x: bool,
+    /// The y range drawn, when it is set by part of the data only (the truth and the filters
+    /// that did not diverge): bands are clamped to it and clipped curves end with a marker.
+    pub y_range: Option<(f64, f64)>,
+    /// Markers where a clipped curve leaves the frame: (legend name, colour, point).
+    pub clipped: Vec<(String, RGBColor, (f64, f64))>,
+    /// Time spans without any measurement (missing values, outages), shaded.
+    pub gaps: Vec<(f64, f64)>,
     /// Caption under the plot.
     pub caption: String,
     /// The data's clock when x is time in seconds since the first row: ticks are then shown in
@@ -214,24 +223,37 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
             v
         }
     };
+    let log_x = plot.log_x;
+    let tx = move |v: f64| if log_x { v.max(1e-300).log10() } else { v };
     let xs = plot
         .lines
         .iter()
-        .flat_map(|l| l.points.iter().map(|p| p.0))
-        .chain(plot.areas.iter().flat_map(|a| a.points.iter().map(|p| p.0)))
-        .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| p.0)));
-    let (x0, x1) = finite_range(xs);
-    let ys = plot
-        .lines
-        .iter()
-        .flat_map(|l| l.points.iter().map(|p| ty(p.1)))
+        .flat_map(|l| l.points.iter().map(|p| tx(p.0)))
         .chain(
             plot.areas
                 .iter()
-                .flat_map(|a| a.points.iter().flat_map(|p| [ty(p.1), ty(p.2)])),
+                .flat_map(|a| a.points.iter().map(|p| tx(p.0))),
         )
-        .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| ty(p.1))));
-    let (y0, y1) = finite_range(ys);
+        .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| tx(p.0))));
+    let (x0, x1) = finite_range(xs);
+    let (y0, y1) = match plot.y_range {
+        Some((lo, hi)) => (ty(lo), ty(hi)),
+        None => {
+            let ys = plot
+                .lines
+                .iter()
+                .flat_map(|l| l.points.iter().map(|p| ty(p.1)))
+                .chain(
+                    plot.areas
+                        .iter()
+                        .flat_map(|a| a.points.iter().flat_map(|p| [ty(p.1), ty(p.2)])),
+                )
+                .chain(plot.dots.iter().flat_map(|d| d.2.iter().map(|p| ty(p.1))));
+            finite_range(ys)
+        }
+    };
+    // Everything drawn stays inside the frame (a clipped curve has its marker).
+    let clamp = move |y: f64| y.clamp(y0, y1);
     let mut chart = ChartBuilder::on(&area)
         .caption(&plot.title, ("sans-serif", 18))
         .margin(8)
@@ -253,6 +275,9 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
     let clock = plot.clock.as_ref();
     let x_format = move |v: &f64| {
         let v = snap(*v, x_span);
+        if log_x {
+            return sig(10f64.powf(v), 2);
+        }
         clock
             .and_then(|c| c.tick(v, x_span))
             .unwrap_or_else(|| sig(v, 3))
@@ -266,11 +291,23 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
         .light_line_style(RGBColor(235, 235, 235))
         .draw()
         .map_err(plot_error)?;
+    let gap_style = RGBColor(200, 200, 200).mix(0.35).filled();
+    for &(g0, g1) in &plot.gaps {
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(tx(g0), y0), (tx(g1), y1)],
+                gap_style,
+            )))
+            .map_err(plot_error)?;
+    }
+    if !plot.gaps.is_empty() {
+        legend.push(("no measurement".into(), Glyph::Band(gap_style)));
+    }
     for a in &plot.areas {
         let pts: Vec<(f64, f64, f64)> = a
             .points
             .iter()
-            .map(|&(x, lo, hi)| (x, ty(lo), ty(hi)))
+            .map(|&(x, lo, hi)| (tx(x), clamp(ty(lo)), clamp(ty(hi))))
             .filter(|(x, lo, hi)| x.is_finite() && lo.is_finite() && hi.is_finite())
             .collect();
         if pts.is_empty() {
@@ -290,8 +327,8 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
         let c = *c;
         let pts: Vec<(f64, f64)> = pts
             .iter()
-            .map(|&(x, y)| (x, ty(y)))
-            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .map(|&(x, y)| (tx(x), ty(y)))
+            .filter(|(x, y)| x.is_finite() && y.is_finite() && (y0..=y1).contains(y))
             .collect();
         if pts.is_empty() {
             continue;
@@ -310,7 +347,7 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
         let pts: Vec<(f64, f64)> = l
             .points
             .iter()
-            .map(|&(x, y)| (x, ty(y)))
+            .map(|&(x, y)| (tx(x), clamp(ty(y))))
             .filter(|(x, y)| x.is_finite() && y.is_finite())
             .collect();
         if pts.is_empty() {
@@ -323,6 +360,17 @@ fn draw_lines(plot: &LinePlot, whole: &DrawingArea<SVGBackend<'_>, Shift>) -> Re
         if !l.name.is_empty() {
             legend.push((l.name.clone(), Glyph::Stroke(style)));
         }
+    }
+    for (name, c, (x, y)) in &plot.clipped {
+        let style = c.stroke_width(2);
+        chart
+            .draw_series(std::iter::once(Cross::new(
+                (tx(*x), clamp(ty(*y))),
+                6,
+                style,
+            )))
+            .map_err(plot_error)?;
+        legend.push((format!("{name}: diverged, clipped"), Glyph::Stroke(style)));
     }
     if let Some(legend_area) = legend_area {
         draw_legend(&legend, &legend_area)?;
@@ -449,7 +497,60 @@ fn band_text(b: Option<[f64; 2]>) -> String {
     })
 }
 
+/// What the verdict concluded about a consistency statistic, in a word for the table.
+fn judged(c: verdict::Consistency) -> &'static str {
+    match c {
+        verdict::Consistency::Consistent => "consistent",
+        verdict::Consistency::OverConfident => "over-confident",
+        verdict::Consistency::UnderConfident => "under-confident",
+        verdict::Consistency::Unknown => "–",
+    }
+}
+
+/// A filter's status as the table shows it.
+fn status_text(f: &FilterSummary) -> String {
+    match (f.status, f.diverged_at) {
+        (Status::Ok, _) => "ok".into(),
+        (Status::Failed, _) => "failed".into(),
+        (Status::Diverged, Some(k)) => format!("diverged at step {k}"),
+        (Status::Diverged, None) => "diverged".into(),
+    }
+}
+
+/// The paired comparison with the reference of `best`, as the table shows it.
+fn versus_best_text(summary: &Summary, f: &FilterSummary) -> String {
+    if summary.best.first() == Some(&f.label) {
+        return "best".into();
+    }
+    let Some(v) = &f.versus_best else {
+        return "–".into();
+    };
+    let tie = if v.tied { "tie: " } else { "" };
+    let sign = if v.difference > 0.0 { "+" } else { "" };
+    if v.measure == "rmse_all" {
+        format!(
+            "{tie}{sign}{} % [{}, {}]",
+            sig(100.0 * v.difference, 2),
+            sig(100.0 * v.interval[0], 2),
+            sig(100.0 * v.interval[1], 2)
+        )
+    } else {
+        format!(
+            "{tie}{sign}{} [{}, {}]",
+            sig(v.difference, 3),
+            sig(v.interval[0], 3),
+            sig(v.interval[1], 3)
+        )
+    }
+}
+
 /// The columns of the summary table (terminal and HTML), one row per filter.
+///
+/// The consistency columns show exactly what the verdict judges ([`verdict::state_consistency`],
+/// [`verdict::innovation_consistency`]), so that the two cannot disagree: on one dataset the
+/// shares of steps below / above the χ²(n) band against their limit (no ANEES band: one run's
+/// steps are correlated, so the χ²(N·n)/N band of independent steps does not apply), over runs
+/// the ANEES against χ²(M·n)/M.
 pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
     let campaign = summary.runs.is_some();
     let smoothed = summary
@@ -458,18 +559,36 @@ pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
         .any(|f| f.smoothed_rmse_all.is_some());
     let mut header = vec!["filter".to_string(), "status".to_string()];
     if summary.truth {
-        header.push("rmse_all".into());
+        header.push("rmse_all [95 % CI]".into());
         if campaign {
             header.push("± spread".into());
         }
         if smoothed {
             header.push("smoothed".into());
         }
-        header.push("ANEES [95 % band]".into());
-        header.push("NEES in band".into());
+    }
+    if summary.best_by.is_some() {
+        header.push(match summary.best_by.as_deref() {
+            Some("rmse_all") => "vs best (paired, 95 %)".into(),
+            _ => "log-lik vs best (paired, 95 %)".into(),
+        });
+    }
+    if summary.truth {
+        if campaign {
+            header.push("ANEES [95 % band]".into());
+            header.push("NEES in band".into());
+        } else {
+            header.push("ANEES".into());
+            header.push(format!(
+                "NEES below / above band (limit {:.0} %)",
+                100.0 * verdict::TAIL_LIMIT
+            ));
+        }
+        header.push("state".into());
     }
     header.push("ANIS [95 % band]".into());
     header.push("NIS in band".into());
+    header.push("innovations".into());
     if !campaign {
         header.push("white".into());
     }
@@ -482,26 +601,41 @@ pub fn table_rows(summary: &Summary) -> (Vec<String>, Vec<Vec<String>>) {
         .filters
         .iter()
         .map(|f: &FilterSummary| {
-            let mut row = vec![
-                f.label.clone(),
-                match f.status {
-                    Status::Ok => "ok".into(),
-                    Status::Failed => "failed".into(),
-                },
-            ];
+            let mut row = vec![f.label.clone(), status_text(f)];
             if summary.truth {
-                row.push(opt(f.rmse_all, 4));
+                row.push(format!(
+                    "{}{}",
+                    opt(f.rmse_all, 4),
+                    band_text(f.rmse_all_ci)
+                ));
                 if campaign {
                     row.push(opt(f.rmse_all_spread, 2));
                 }
                 if smoothed {
                     row.push(opt(f.smoothed_rmse_all, 4));
                 }
-                row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
-                row.push(share(f.nees_in_band));
+            }
+            if summary.best_by.is_some() {
+                row.push(versus_best_text(summary, f));
+            }
+            if summary.truth {
+                if campaign {
+                    row.push(format!("{}{}", opt(f.anees, 3), band_text(f.anees_band)));
+                    row.push(share(f.nees_in_band));
+                } else {
+                    row.push(opt(f.anees, 3));
+                    row.push(match f.nees_tails {
+                        Some([below, above]) => {
+                            format!("{} / {}", share(Some(below)), share(Some(above)))
+                        }
+                        None => "–".into(),
+                    });
+                }
+                row.push(judged(verdict::state_consistency(f, campaign)).into());
             }
             row.push(format!("{}{}", opt(f.anis, 3), band_text(f.anis_band)));
             row.push(share(f.nis_in_band));
+            row.push(judged(verdict::innovation_consistency(f)).into());
             if !campaign {
                 row.push(
                     match f.whiteness.as_ref().and_then(|w| w.white) {
@@ -657,6 +791,281 @@ fn time_band(series: &Series, lo: f64, hi: f64) -> Vec<(f64, f64, f64)> {
     }
 }
 
+/// Time spans without any measurement component longer than twice the median interval
+/// between measured rows (an outage, not the regular pace of a slow sensor); a missing start
+/// or end is shaded from the first or to the last row.
+pub fn measurement_gaps(series: &Series) -> Vec<(f64, f64)> {
+    let m = series.measurements;
+    let rows = series.len();
+    if m == 0 || rows < 2 {
+        return Vec::new();
+    }
+    let measured: Vec<f64> = (0..rows)
+        .filter(|&r| series.y[r * m..(r + 1) * m].iter().any(|v| !v.is_nan()))
+        .map(|r| series.t[r])
+        .collect();
+    let (first, last) = (series.t[0], series.t[rows - 1]);
+    let Some((&m0, &m1)) = measured.first().zip(measured.last()) else {
+        return vec![(first, last)];
+    };
+    let mut intervals: Vec<f64> = measured.windows(2).map(|w| w[1] - w[0]).collect();
+    intervals.sort_by(f64::total_cmp);
+    let median = intervals.get(intervals.len() / 2).copied().unwrap_or(0.0);
+    let row_step = (last - first) / (rows - 1) as f64;
+    let limit = 2.0 * median.max(row_step);
+    let mut gaps = Vec::new();
+    if m0 > first + limit / 2.0 {
+        gaps.push((first, m0));
+    }
+    gaps.extend(
+        measured
+            .windows(2)
+            .filter(|w| w[1] - w[0] > limit)
+            .map(|w| (w[0], w[1])),
+    );
+    if last > m1 + limit / 2.0 {
+        gaps.push((m1, last));
+    }
+    gaps
+}
+
+/// Sets the frame of a plot from everything but the curves of the `diverged` filters (lines
+/// with those names; their bands are the unnamed areas in the same order) and cuts each such
+/// curve where it first leaves the frame, with a marker there.
+fn clip_diverged(plot: &mut LinePlot, diverged: &[String]) {
+    if diverged.is_empty() {
+        return;
+    }
+    let is_diverged = |name: &str| diverged.iter().any(|d| d == name);
+    // Bands are pushed one per filter line, in the same order, before the truth.
+    let filter_lines: Vec<bool> = plot
+        .lines
+        .iter()
+        .filter(|l| l.name != "truth")
+        .map(|l| is_diverged(&l.name))
+        .collect();
+    let unnamed: Vec<usize> = (0..plot.areas.len())
+        .filter(|&a| plot.areas[a].name.is_empty())
+        .collect();
+    let mut values: Vec<f64> = Vec::new();
+    for l in plot.lines.iter().filter(|l| !is_diverged(&l.name)) {
+        values.extend(l.points.iter().map(|p| p.1));
+    }
+    for (k, &a) in unnamed.iter().enumerate() {
+        if !filter_lines.get(k).copied().unwrap_or(false) {
+            values.extend(plot.areas[a].points.iter().flat_map(|p| [p.1, p.2]));
+        }
+    }
+    for a in plot.areas.iter().filter(|a| !a.name.is_empty()) {
+        values.extend(a.points.iter().flat_map(|p| [p.1, p.2]));
+    }
+    for d in &plot.dots {
+        values.extend(d.2.iter().map(|p| p.1));
+    }
+    let (lo, hi) = finite_range(values.into_iter());
+    plot.y_range = Some((lo, hi));
+    let names: Vec<(String, RGBColor)> = plot
+        .lines
+        .iter()
+        .filter(|l| l.name != "truth")
+        .map(|l| (l.name.clone(), l.colour))
+        .collect();
+    for (k, (name, colour)) in names.iter().enumerate() {
+        if !is_diverged(name) {
+            continue;
+        }
+        let outside = |y: f64| y.is_finite() && !(lo..=hi).contains(&y);
+        let line = plot.lines.iter_mut().find(|l| &l.name == name);
+        let line_cut = line
+            .as_ref()
+            .and_then(|l| l.points.iter().position(|p| outside(p.1)));
+        let band = unnamed.get(k).map(|&a| &mut plot.areas[a]);
+        let band_cut = band
+            .as_ref()
+            .and_then(|b| b.points.iter().position(|p| outside(p.1) || outside(p.2)));
+        // The curve and its band stop where the first of them leaves the frame.
+        let cut = match (line_cut, band_cut) {
+            (Some(a), Some(b)) => a.min(b),
+            (Some(a), None) | (None, Some(a)) => a,
+            (None, None) => continue,
+        };
+        let mut marker = None;
+        if let Some(l) = line {
+            marker = l.points.get(cut).copied();
+            l.points.truncate(cut);
+        }
+        if let Some(b) = band {
+            if band_cut == Some(cut) {
+                marker = b.points.get(cut).map(|p| (p.0, p.2));
+            }
+            b.points.truncate(cut);
+        }
+        if let Some((x, y)) = marker {
+            plot.clipped
+                .push((name.clone(), *colour, (x, y.clamp(lo, hi))));
+        }
+    }
+}
+
+/// The estimation error (estimate − truth) of state `i` with each filter's ±2σ band, one panel
+/// per filter on shared axes (small multiples), diverged filters clipped.
+fn error_panels(
+    summary: &Summary,
+    series: &Series,
+    i: usize,
+    state: &sightline_core::Variable,
+    clock: &Clock,
+    gaps: &[(f64, f64)],
+    diverged: &[String],
+) -> Vec<Plot> {
+    let (n, nf) = (series.states, series.filters);
+    let rows = series.len();
+    let at = |r: usize, f: usize| (r * nf + f) * n + i;
+    let error = |r: usize, f: usize| series.mean[at(r, f)] - series.truth[r * n + i];
+    let shown: Vec<usize> = (0..nf)
+        .filter(|&f| summary.filters.get(f).is_some_and(|s| s.status.finished()))
+        .collect();
+    // Shared frame from the filters that did not diverge.
+    let frame_values = shown
+        .iter()
+        .filter(|&&f| !diverged.contains(&summary.filters[f].label))
+        .flat_map(|&f| {
+            (0..rows).flat_map(move |r| {
+                let (e, sd) = (error(r, f), series.sd[at(r, f)]);
+                [e, -2.0 * sd, 2.0 * sd]
+            })
+        });
+    let frame = finite_range(frame_values);
+    shown
+        .iter()
+        .map(|&f| {
+            let label = summary.filters[f].label.clone();
+            let mut plot = LinePlot {
+                id: format!("error-{}-{f}", state.name),
+                title: format!("{} error: {label}", state.name),
+                x_label: clock.axis_label(),
+                y_label: format!("estimate − truth [{}]", state.unit),
+                areas: vec![Area {
+                    name: "±2σ".into(),
+                    colour: colour(f),
+                    opacity: 0.2,
+                    points: (0..rows)
+                        .map(|r| {
+                            let sd = series.sd[at(r, f)];
+                            (series.t[r], -2.0 * sd, 2.0 * sd)
+                        })
+                        .collect(),
+                }],
+                lines: vec![Line {
+                    name: label.clone(),
+                    colour: colour(f),
+                    points: (0..rows).map(|r| (series.t[r], error(r, f))).collect(),
+                    width: 1,
+                }],
+                y_range: Some(frame),
+                gaps: gaps.to_vec(),
+                clock: Some(clock.clone()),
+                caption: format!(
+                    "Estimation error of {} by {label} with its ±2σ band; every panel of this                      state shares its axes. About 95 % of the error should lie inside the band                      for a consistent filter.",
+                    state.name
+                ),
+                ..LinePlot::default()
+            };
+            if diverged.contains(&label) {
+                let (lo, hi) = frame;
+                if let Some(cut) = plot.lines[0]
+                    .points
+                    .iter()
+                    .position(|p| p.1.is_finite() && !(lo..=hi).contains(&p.1))
+                {
+                    let (x, y) = plot.lines[0].points[cut];
+                    plot.lines[0].points.truncate(cut);
+                    plot.clipped.push((label, colour(f), (x, y.clamp(lo, hi))));
+                }
+            }
+            Plot::Lines(plot)
+        })
+        .collect()
+}
+
+/// Which of the (cost, error) points lie on the Pareto front: no other point is at most as
+/// costly and at most as wrong, and strictly better in one of the two.
+///
+/// ```
+/// use sightline_eval::report::pareto_front;
+/// assert_eq!(pareto_front(&[(1.0, 2.0), (2.0, 1.0), (2.0, 2.0)]), [true, true, false]);
+/// ```
+pub fn pareto_front(points: &[(f64, f64)]) -> Vec<bool> {
+    points
+        .iter()
+        .map(|&(c, e)| {
+            !points
+                .iter()
+                .any(|&(c2, e2)| c2 <= c && e2 <= e && (c2 < c || e2 < e))
+        })
+        .collect()
+}
+
+/// Accuracy against cost per step, both on log axes, with each filter's 95 % interval of
+/// `rmse_all` and the Pareto front (what no other filter beats on both): e.g. how many
+/// particles are enough, from a sweep `pf:particles=500|2000|8000`.
+pub fn accuracy_cost_plot(summary: &Summary) -> Option<Plot> {
+    let ranked: Vec<(usize, &FilterSummary)> = summary
+        .filters
+        .iter()
+        .enumerate()
+        .filter(|(_, f)| f.status == Status::Ok && f.seconds_per_step > 0.0)
+        .filter(|(_, f)| f.rmse_all.is_some_and(|r| r > 0.0))
+        .collect();
+    if !summary.truth || ranked.len() < 2 {
+        return None;
+    }
+    let points: Vec<(f64, f64)> = ranked
+        .iter()
+        .map(|(_, f)| (f.seconds_per_step, f.rmse_all.unwrap_or(f64::NAN)))
+        .collect();
+    let front = pareto_front(&points);
+    let mut on_front: Vec<(f64, f64)> = points
+        .iter()
+        .zip(&front)
+        .filter(|(_, on)| **on)
+        .map(|(p, _)| *p)
+        .collect();
+    on_front.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let mut lines = vec![Line {
+        name: "Pareto front".into(),
+        colour: BLACK,
+        points: on_front,
+        width: 1,
+    }];
+    let mut dots = Vec::new();
+    for (k, (i, f)) in ranked.iter().enumerate() {
+        let (c, r) = points[k];
+        dots.push((f.label.clone(), colour(*i), vec![(c, r)]));
+        if let Some([lo, hi]) = f.rmse_all_ci {
+            lines.push(Line {
+                name: String::new(),
+                colour: colour(*i),
+                points: vec![(c, lo.max(r * 1e-3)), (c, hi)],
+                width: 2,
+            });
+        }
+    }
+    Some(Plot::Lines(LinePlot {
+        id: "accuracy-cost".into(),
+        title: "accuracy against cost".into(),
+        x_label: "seconds per step (log scale)".into(),
+        y_label: "rmse_all (log scale)".into(),
+        lines,
+        dots,
+        log_x: true,
+        log_y: true,
+        caption: "Each filter's rmse_all with its 95 % interval against its wall-clock cost per                   step; the line joins the Pareto front, the filters no other filter beats on                   both accuracy and cost. Costs are measurements of this run on this machine."
+            .into(),
+        ..LinePlot::default()
+    }))
+}
+
 /// The plots of a single-dataset comparison.
 pub fn compare_plots(
     summary: &Summary,
@@ -671,6 +1080,13 @@ pub fn compare_plots(
     let rows = series.len();
     let labels: Vec<&str> = summary.filters.iter().map(|f| f.label.as_str()).collect();
     let mut shown_measurement = vec![false; m];
+    let gaps = measurement_gaps(series);
+    let diverged: Vec<String> = summary
+        .filters
+        .iter()
+        .filter(|f| f.status == Status::Diverged)
+        .map(|f| f.label.clone())
+        .collect();
     for (i, state) in states.iter().enumerate().take(n) {
         let mut plot = LinePlot {
             id: format!("state-{}", state.name),
@@ -681,6 +1097,10 @@ pub fn compare_plots(
             lines: Vec::new(),
             dots: Vec::new(),
             log_y: false,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             clock: Some(clock.clone()),
             caption: format!(
                 "State {}: each filter's posterior mean with its ±2σ band{}.",
@@ -735,7 +1155,17 @@ pub fn compare_plots(
                 width: 2,
             });
         }
+        plot.gaps = gaps.clone();
+        clip_diverged(&mut plot, &diverged);
         plots.push(Plot::Lines(plot));
+        if summary.truth {
+            plots.extend(error_panels(
+                summary, series, i, state, clock, &gaps, &diverged,
+            ));
+        }
+    }
+    if let Some(p) = accuracy_cost_plot(summary) {
+        plots.push(p);
     }
     if series.smoothed() {
         plots.extend(smoothed_plots(summary, series, states, clock));
@@ -759,6 +1189,10 @@ pub fn compare_plots(
                     .collect(),
             )],
             log_y: false,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             clock: Some(clock.clone()),
             caption: format!(
                 "Measurement {} as recorded; gaps are missing values.",
@@ -791,6 +1225,10 @@ pub fn compare_plots(
                     .collect(),
                 dots: Vec::new(),
                 log_y: true,
+                log_x: false,
+                y_range: None,
+                clipped: Vec::new(),
+                gaps: Vec::new(),
                 clock: Some(clock.clone()),
                 caption: format!(
                     "Normalised estimation error squared eᵀP⁻¹e of each posterior; a consistent \
@@ -824,6 +1262,10 @@ pub fn compare_plots(
                 .collect(),
             dots: Vec::new(),
             log_y: true,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             clock: Some(clock.clone()),
             caption: format!(
                 "Normalised innovation squared νᵀS⁻¹ν of each update; the band is that of all {m} \
@@ -875,6 +1317,10 @@ pub fn compare_plots(
             lines,
             dots: Vec::new(),
             log_y: false,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             clock: None,
             caption: format!(
                 "Normalised sample autocorrelation of the standardised innovation of {name}; a \
@@ -956,6 +1402,10 @@ fn smoothed_plots(
             dots: Vec::new(),
             clock: Some(clock.clone()),
             log_y: false,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             caption: format!(
                 "State {}: each smoother's estimate from all the measurements (--smooth), with \
                  its ±2σ band{}. Rauch–Tung–Striebel for the Gaussian filters (sigma-point and \
@@ -1065,6 +1515,10 @@ mod tests {
             }],
             dots: Vec::new(),
             log_y: true,
+            log_x: false,
+            y_range: None,
+            clipped: Vec::new(),
+            gaps: Vec::new(),
             clock: None,
             caption: String::new(),
         });

@@ -28,6 +28,7 @@ use sightline_filters::{Diagnostics, Filter, FilterSpec, SmoothedTrack};
 
 use crate::dataset::read::RecordSource;
 use crate::dataset::{Layout, Record};
+use crate::divergence::{Divergence, DivergenceWatch};
 use crate::error::{Error, Result};
 use crate::metrics::{DEFAULT_WHITENESS_LAGS, FilterMetrics, StepMetrics, normalised_squared};
 use crate::plant::AnyPlant;
@@ -93,8 +94,9 @@ pub fn build_filters(
         .collect()
 }
 
-/// Parses filter spec strings; with none, every kind that applies to the plant (`kf` only for
-/// linear plants). Duplicated labels are rejected since the label identifies a filter.
+/// Parses filter spec strings, expanding sweeps (`key=a|b|c`, [`FilterSpec::expand`]); with
+/// none, every kind that applies to the plant (`kf` only for linear plants). Duplicated labels
+/// are rejected since the label identifies a filter.
 pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterSpec>> {
     let parsed: Vec<FilterSpec> = if specs.is_empty() {
         sightline_filters::default_kinds(plant.is_linear())
@@ -102,10 +104,11 @@ pub fn parse_specs(plant: &dyn AnyPlant, specs: &[String]) -> Result<Vec<FilterS
             .map(FilterSpec::parse)
             .collect::<Result<_, _>>()?
     } else {
-        specs
-            .iter()
-            .map(|s| FilterSpec::parse(s))
-            .collect::<Result<_, _>>()?
+        let mut all = Vec::new();
+        for s in specs {
+            all.extend(FilterSpec::expand(s)?);
+        }
+        all
     };
     for (i, s) in parsed.iter().enumerate() {
         if parsed[..i].iter().any(|p| p.label == s.label) {
@@ -454,6 +457,8 @@ pub struct FilterOutcome {
     pub diagnostics: Diagnostics,
     /// What smoothing gave, when the run was smoothed and the filter ran to the end.
     pub smoothing: Option<Smoothing>,
+    /// When and why the filter diverged, if it did ([`crate::divergence`]).
+    pub divergence: Option<Divergence>,
 }
 
 /// What became of smoothing one filter's run.
@@ -522,6 +527,8 @@ struct Lane {
     error: Vec<f64>,
     work: Vec<f64>,
     z: Vec<f64>,
+    variances: Vec<f64>,
+    watch: DivergenceWatch,
 }
 
 impl Lane {
@@ -546,6 +553,9 @@ pub fn run(
     let m = plant.measurements().len();
     let layout = source.layout().clone();
     let truth = !layout.states.is_empty();
+    let state_names: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    let (prior_mean, prior_cov) = plant.prior();
+    let nees_hi = crate::chi2::band(n).map(|b| b.hi);
     let mut lanes: Vec<Lane> = filters
         .into_iter()
         .map(|mut filter| {
@@ -564,12 +574,15 @@ pub fn run(
                 metrics: FilterMetrics::new(n, m, config.whiteness_lags),
                 diagnostics: Diagnostics::default(),
                 smoothing: None,
+                divergence: None,
             },
             filter,
             sd: vec![0.0; n],
             error: vec![0.0; n],
             work: vec![0.0; n * n],
             z: vec![0.0; n],
+            variances: vec![0.0; n],
+            watch: DivergenceWatch::new(&prior_mean, &prior_cov, nees_hi),
         })
         .collect();
     let mut series =
@@ -669,6 +682,7 @@ pub fn run(
                 continue;
             }
             for i in 0..n {
+                lane.variances[i] = cov[i + i * n];
                 lane.sd[i] = cov[i + i * n].max(0.0).sqrt();
             }
             let mut step = StepMetrics {
@@ -720,6 +734,13 @@ pub fn run(
                 lane.outcome
                     .metrics
                     .add_update(&record.y, lane.filter.innovation(), increment);
+            lane.watch.observe(
+                k,
+                &lane.variances,
+                step.nees,
+                row_truth.map(Vec::as_slice),
+                &state_names,
+            );
             observer.filter_step(k, record.t, index, lane.filter.as_ref(), &lane.sd, &step)?;
             if keep {
                 if let Some(s) = series.as_mut() {
@@ -753,6 +774,7 @@ pub fn run(
                 lane.outcome.metrics.forget_truth();
             }
             lane.outcome.diagnostics = lane.filter.diagnostics();
+            lane.outcome.divergence = lane.watch.divergence().cloned();
             if config.smooth && lane.outcome.ok() {
                 lane.outcome.smoothing = Some(smooth(lane.filter.as_ref(), k, n, truth_rows));
             }

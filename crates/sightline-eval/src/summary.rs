@@ -1,12 +1,14 @@
 //! `summary.json`: the machine-readable result of `compare` and `montecarlo`, with the key names
 //! of the command and file contract (design notes §4).
 //!
-//! Contract keys per filter: `label`, `kind`, `status` (`ok`/`failed`), `error`, `rmse` (state →
-//! value, model order), `rmse_all`, `anees`, `nees_in_band`, `anis`, `nis_in_band`,
+//! Contract keys per filter: `label`, `kind`, `status` (`ok`/`failed`/`diverged`), `error`,
+//! `rmse` (state → value, model order), `rmse_all`, `rmse_all_ci` (95 %, [`crate::intervals`]),
+//! `anees`, `nees_in_band`, `anis`, `nis_in_band`,
 //! `log_likelihood`, `seconds_per_step`, `smoothed_rmse_all` (with `compare --smooth` also
 //! `smoothed_rmse`, state → value, and `smoother`); `montecarlo` adds `runs`,
 //! `failures`, `rmse_all_spread` and `anees_band`, and at top level `runs` and
-//! `pcrlb_rmse_all`. At top level every result carries `settings` (how to rerun it, see
+//! `pcrlb_rmse_all`. At top level `best` lists the filters not distinguishable at 95 % from the
+//! most accurate (paired; by log-likelihood without truth, `best_by` says which), and every result carries `settings` (how to rerun it, see
 //! [`crate::settings`]) and `ignored_columns` (the dataset's columns the model did not read).
 //! Extra keys (bands, whiteness, diagnostics, criteria) add detail without
 //! changing any contract key.
@@ -106,6 +108,31 @@ pub enum Status {
     Ok,
     /// Stopped by an error.
     Failed,
+    /// Ran to the end but lost the state ([`crate::divergence`]): never in `best`.
+    Diverged,
+}
+
+impl Status {
+    /// Whether the filter ran to the end (ok or diverged): its numbers are reported.
+    pub fn finished(self) -> bool {
+        self != Status::Failed
+    }
+}
+
+/// A filter compared with the reference of `best` (the most accurate, or the best fit), paired.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct VersusBest {
+    /// The reference filter's label.
+    pub reference: String,
+    /// `rmse_all` (relative difference `rmse_all / reference − 1`) or `log_likelihood`
+    /// (difference `log_likelihood − reference`).
+    pub measure: String,
+    /// The point estimate of the difference.
+    pub difference: f64,
+    /// Its 95 % interval.
+    pub interval: [f64; 2],
+    /// Whether it is indistinguishable from the reference at 95 %.
+    pub tied: bool,
 }
 
 /// One filter's entry in `summary.json`.
@@ -115,7 +142,7 @@ pub struct FilterSummary {
     pub label: String,
     /// Filter kind.
     pub kind: String,
-    /// `ok` or `failed`.
+    /// `ok`, `failed` or `diverged`.
     pub status: Status,
     /// The error, if it failed (Monte Carlo: the first failure, with its run).
     pub error: Option<String>,
@@ -123,6 +150,23 @@ pub struct FilterSummary {
     pub rmse: Option<StateMap>,
     /// √(mean over steps and state components of the squared error).
     pub rmse_all: Option<f64>,
+    /// 95 % interval of `rmse_all`: moving-block bootstrap on one dataset, Student-t over runs
+    /// in a campaign ([`crate::intervals`]); null without truth.
+    #[serde(default)]
+    pub rmse_all_ci: Option<[f64; 2]>,
+    /// Row at which the filter diverged (Monte Carlo: in the first run that diverged).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub diverged_at: Option<u64>,
+    /// Why it is declared diverged (Monte Carlo: the first run's reason, with the run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub divergence: Option<String>,
+    /// Monte Carlo: runs in which the filter diverged.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub diverged_runs: Option<u64>,
+    /// The paired comparison with the reference of `best` (null for the reference itself and
+    /// for filters that failed or diverged).
+    #[serde(default)]
+    pub versus_best: Option<VersusBest>,
     /// Average NEES.
     pub anees: Option<f64>,
     /// Share of steps whose NEES (Monte Carlo: whose M-run average NEES) is inside its 95 % band.
@@ -189,6 +233,14 @@ pub struct Summary {
     pub ignored_columns: Vec<String>,
     /// Whether accuracy could be measured (the data carried truth).
     pub truth: bool,
+    /// The filters not distinguishable at 95 % from the most accurate one (paired), most
+    /// accurate first; without truth, from the highest log-likelihood.
+    #[serde(default)]
+    pub best: Vec<String>,
+    /// What `best` ranks by: `rmse_all` or `log_likelihood` (null when nothing could be
+    /// ranked).
+    #[serde(default)]
+    pub best_by: Option<String>,
     /// What the verdict and report judged by.
     pub criteria: Vec<String>,
     /// One entry per filter, in spec order.

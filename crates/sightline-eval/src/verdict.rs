@@ -10,9 +10,6 @@
 
 use crate::summary::{FilterSummary, Status};
 
-/// Accuracy within this relative margin of the best counts as "as accurate" (our own choice).
-const CLOSE: f64 = 0.05;
-
 /// A number with `digits` significant digits, in plain or scientific notation as fits.
 pub fn sig(v: f64, digits: usize) -> String {
     if !v.is_finite() {
@@ -99,12 +96,148 @@ fn names(list: &[&FilterSummary]) -> String {
         .join(", ")
 }
 
+/// "1 filter", "2 filters".
+pub fn count(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("{n} {noun}")
+    } else {
+        format!("{n} {noun}s")
+    }
+}
+
+/// A relative difference and its interval in per cent: "2.1 % [0.4, 3.9]".
+fn percent(difference: f64, interval: [f64; 2]) -> String {
+    format!(
+        "{} % [{}, {}]",
+        sig(100.0 * difference.abs(), 2),
+        sig(100.0 * interval[0], 2),
+        sig(100.0 * interval[1], 2)
+    )
+}
+
+/// Cost of `f` relative to `reference`: "300× the cost" or "0.5× the cost".
+fn cost_ratio(f: &FilterSummary, reference: &FilterSummary) -> String {
+    let r = f.seconds_per_step / reference.seconds_per_step.max(1e-15);
+    format!("{}× the cost", sig(r, 2))
+}
+
+/// The accuracy (or, without truth, predictive-fit) ranking: the `best` group with the paired
+/// intervals of the others against its reference.
+fn ranking_lines(
+    filters: &[FilterSummary],
+    best: &[String],
+    by_rmse: bool,
+    lines: &mut Vec<String>,
+) {
+    let find = |label: &str| filters.iter().find(|f| f.label == label);
+    let Some(reference) = best.first().and_then(|l| find(l)) else {
+        return;
+    };
+    let group: Vec<&FilterSummary> = best.iter().filter_map(|l| find(l)).collect();
+    let value = if by_rmse {
+        format!(
+            "rmse_all {}{}",
+            sig(reference.rmse_all.unwrap_or(f64::NAN), 3),
+            reference
+                .rmse_all_ci
+                .map_or(String::new(), |[lo, hi]| format!(
+                    " [{}, {}]",
+                    sig(lo, 3),
+                    sig(hi, 3)
+                ))
+        )
+    } else {
+        format!(
+            "log-likelihood {}",
+            sig(reference.log_likelihood.unwrap_or(f64::NAN), 6)
+        )
+    };
+    let what = if by_rmse {
+        "accurate"
+    } else {
+        "good a predictive fit"
+    };
+    if group.len() > 1 {
+        lines.push(format!(
+            "{} are equally {what} here (paired, 95 %; {} {value}).",
+            names(&group),
+            reference.label,
+        ));
+    } else if by_rmse {
+        lines.push(format!("Most accurate: {} ({value}).", reference.label));
+    } else {
+        lines.push(format!(
+            "Best predictive fit (highest log-likelihood): {} ({value}).",
+            reference.label
+        ));
+    }
+    let mut others: Vec<(f64, String)> = Vec::new();
+    for f in filters {
+        let Some(v) = f.versus_best.as_ref().filter(|v| !v.tied) else {
+            continue;
+        };
+        let text = if by_rmse {
+            format!(
+                "{} is {} {} accurate at {}",
+                f.label,
+                percent(v.difference, v.interval),
+                if v.difference > 0.0 { "less" } else { "more" },
+                cost_ratio(f, reference)
+            )
+        } else {
+            format!(
+                "{}'s log-likelihood is {} [{}, {}] lower at {}",
+                f.label,
+                sig(-v.difference, 3),
+                sig(-v.interval[1], 3),
+                sig(-v.interval[0], 3),
+                cost_ratio(f, reference)
+            )
+        };
+        others.push((v.difference.abs(), text));
+    }
+    others.sort_by(|a, b| a.0.total_cmp(&b.0));
+    if !others.is_empty() {
+        lines.push(format!(
+            "Against {} (paired 95 % intervals): {}.",
+            reference.label,
+            others
+                .into_iter()
+                .map(|(_, t)| t)
+                .collect::<Vec<_>>()
+                .join("; ")
+        ));
+    }
+}
+
 /// The verdict text for a set of filter results. `truth` says whether accuracy was measurable;
 /// `runs` is the Monte Carlo run count (`None` for a single dataset); `steps` the rows per
-/// dataset.
-pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps: u64) -> String {
+/// dataset; `best` the summary's `best` group (reference first).
+pub fn verdict(
+    filters: &[FilterSummary],
+    best: &[String],
+    truth: bool,
+    runs: Option<u64>,
+    steps: u64,
+) -> String {
     let mut lines: Vec<String> = Vec::new();
     let ok: Vec<&FilterSummary> = filters.iter().filter(|f| f.status == Status::Ok).collect();
+    for f in filters.iter().filter(|f| f.status == Status::Diverged) {
+        let at = match (f.diverged_at, f.diverged_runs) {
+            (Some(k), Some(m)) => format!(
+                "in {} of {} (first at step {k})",
+                count(m as usize, "run"),
+                f.runs.unwrap_or(0)
+            ),
+            (Some(k), None) => format!("at step {k}"),
+            _ => String::new(),
+        };
+        lines.push(format!(
+            "{} diverged {at}: {}; it is not ranked.",
+            f.label,
+            f.divergence.as_deref().unwrap_or("no reason recorded")
+        ));
+    }
     for f in filters.iter().filter(|f| f.status == Status::Failed) {
         lines.push(format!(
             "{} failed: {}.",
@@ -127,35 +260,14 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
     }
     let campaign = runs.is_some();
     // Accuracy.
-    let mut best_accuracy: Option<&FilterSummary> = None;
+    let best_accuracy: Option<&FilterSummary> = if truth {
+        best.first()
+            .and_then(|l| ok.iter().copied().find(|f| &f.label == l))
+    } else {
+        None
+    };
     if truth {
-        best_accuracy = ok
-            .iter()
-            .copied()
-            .filter(|f| f.rmse_all.is_some())
-            .min_by(|a, b| {
-                a.rmse_all
-                    .partial_cmp(&b.rmse_all)
-                    .unwrap_or(std::cmp::Ordering::Equal)
-            });
-        if let Some(best) = best_accuracy {
-            let r = best.rmse_all.unwrap_or(f64::NAN);
-            let close: Vec<&FilterSummary> = ok
-                .iter()
-                .copied()
-                .filter(|f| f.label != best.label)
-                .filter(|f| f.rmse_all.is_some_and(|x| x <= r * (1.0 + CLOSE)))
-                .collect();
-            let mut line = format!("Most accurate: {} (rmse_all {}).", best.label, sig(r, 3));
-            if !close.is_empty() {
-                line.push_str(&format!(
-                    " Within {:.0} % of it: {}.",
-                    CLOSE * 100.0,
-                    names(&close)
-                ));
-            }
-            lines.push(line);
-        }
+        ranking_lines(filters, best, true, &mut lines);
     }
 
     // Consistency.
@@ -341,33 +453,33 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
                 .partial_cmp(&b.log_likelihood)
                 .unwrap_or(std::cmp::Ordering::Equal)
         });
-    if let Some(f) = best_fit {
-        if ok.len() > 1 {
-            let best = f.log_likelihood.unwrap_or(f64::NAN);
-            // Equal to the printed precision counts as a tie (e.g. every Gaussian filter on a
-            // linear plant).
-            let tol = 1e-6 * best.abs().max(1.0);
-            let tied: Vec<&FilterSummary> = ok
-                .iter()
-                .copied()
-                .filter(|g| g.log_likelihood.is_some_and(|l| (best - l).abs() <= tol))
-                .collect();
-            lines.push(format!(
-                "Best predictive fit (highest log-likelihood{}): {} ({}{}).",
-                if runs.is_some() {
-                    ", mean over runs"
-                } else {
-                    ""
-                },
-                if tied.len() > 1 {
-                    names(&tied)
-                } else {
-                    f.label.clone()
-                },
-                if tied.len() > 1 { "tied at " } else { "" },
-                sig(best, 6)
-            ));
-        }
+    if !truth && ok.len() > 1 {
+        ranking_lines(filters, best, false, &mut lines);
+    } else if let Some(f) = best_fit.filter(|_| ok.len() > 1) {
+        let top = f.log_likelihood.unwrap_or(f64::NAN);
+        // Equal to the printed precision counts as a tie (e.g. every Gaussian filter on a
+        // linear plant).
+        let tol = 1e-6 * top.abs().max(1.0);
+        let tied: Vec<&FilterSummary> = ok
+            .iter()
+            .copied()
+            .filter(|g| g.log_likelihood.is_some_and(|l| (top - l).abs() <= tol))
+            .collect();
+        lines.push(format!(
+            "Best predictive fit (highest log-likelihood{}): {} ({}{}).",
+            if runs.is_some() {
+                ", mean over runs"
+            } else {
+                ""
+            },
+            if tied.len() > 1 {
+                names(&tied)
+            } else {
+                f.label.clone()
+            },
+            if tied.len() > 1 { "tied at " } else { "" },
+            sig(top, 6)
+        ));
     }
 
     // Cost.
@@ -405,14 +517,13 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
                 "the best predictive fit among the filters with consistent, white innovations"
             };
             let mut line = format!("On this run, {} is {why}", p.label);
+            // A cheaper consistent filter that the paired comparison cannot tell from it.
+            let in_best = |f: &FilterSummary| best.iter().any(|l| l == &f.label);
             let cheaper = consistent
                 .iter()
                 .copied()
                 .filter(|f| f.label != p.label && f.seconds_per_step < 0.5 * p.seconds_per_step)
-                .filter(|f| match (truth, f.rmse_all, p.rmse_all) {
-                    (true, Some(a), Some(b)) => a <= b * (1.0 + CLOSE),
-                    _ => false,
-                })
+                .filter(|f| in_best(f) && in_best(p))
                 .min_by(|a, b| {
                     a.seconds_per_step
                         .partial_cmp(&b.seconds_per_step)
@@ -420,9 +531,9 @@ pub fn verdict(filters: &[FilterSummary], truth: bool, runs: Option<u64>, steps:
                 });
             if let Some(c) = cheaper {
                 line.push_str(&format!(
-                    "; {} is within {:.0} % of its accuracy at {}× lower cost",
+                    "; {} is as {} (paired, 95 %) at {}× lower cost",
                     c.label,
-                    CLOSE * 100.0,
+                    if truth { "accurate" } else { "good a fit" },
                     sig(p.seconds_per_step / c.seconds_per_step.max(1e-12), 2)
                 ));
             }
@@ -463,6 +574,11 @@ mod tests {
             error: None,
             rmse: None,
             rmse_all: Some(rmse),
+            rmse_all_ci: Some([0.9 * rmse, 1.1 * rmse]),
+            diverged_at: None,
+            divergence: None,
+            diverged_runs: None,
+            versus_best: None,
             anees: Some(anees),
             nees_in_band: Some(0.95),
             anis: Some(1.0),
@@ -484,25 +600,92 @@ mod tests {
         }
     }
 
+    fn versus(f: &mut FilterSummary, difference: f64, interval: [f64; 2], tied: bool) {
+        f.versus_best = Some(crate::summary::VersusBest {
+            reference: "ukf".into(),
+            measure: "rmse_all".into(),
+            difference,
+            interval,
+            tied,
+        });
+    }
+
     #[test]
     fn names_the_accurate_the_inconsistent_and_the_cost() {
         let mut failed = filter("pf", 0.0, 0.0, 1e-4);
         failed.status = Status::Failed;
         failed.error = Some("particle collapse at step 3".into());
+        let mut ekf = filter("ekf", 0.102, 2.1, 5e-7);
+        versus(&mut ekf, 0.02, [-0.01, 0.05], true);
+        let mut ckf = filter("ckf", 0.2, 5.0, 2e-6);
+        versus(&mut ckf, 1.0, [0.8, 1.2], false);
+        let mut enkf = filter("enkf", 0.3, 1.0, 1e-5);
+        versus(&mut enkf, 2.0, [1.5, 2.5], false);
+        let mut diverged = filter("iekf", 9.0, 1.0, 1e-6);
+        diverged.status = Status::Diverged;
+        diverged.diverged_at = Some(17);
+        diverged.divergence = Some("the posterior variance of x reached 1e16".into());
+        let v = verdict(
+            &[
+                filter("ukf", 0.100, 2.0, 2e-6),
+                ekf,
+                ckf,
+                enkf,
+                failed,
+                diverged,
+            ],
+            &["ukf".into(), "ekf".into()],
+            true,
+            None,
+            500,
+        );
+        assert!(
+            v.starts_with("iekf diverged at step 17: the posterior variance"),
+            "{v}"
+        );
+        assert!(
+            v.contains("ukf, ekf are equally accurate here (paired, 95 %; ukf rmse_all 0.100 [0.0900, 0.110])"),
+            "{v}"
+        );
+        assert!(
+            v.contains("Against ukf (paired 95 % intervals): ckf is 100 % [80, 120] less accurate at 1.0× the cost; enkf is 200 % [150, 250] less accurate at 5.0× the cost."),
+            "{v}"
+        );
+        assert!(!v.contains("iekf is"), "{v}");
+        let v = verdict(
+            &[
+                filter("ukf", 0.100, 2.0, 2e-6),
+                filter("ckf", 0.2, 5.0, 2e-6),
+                filter("enkf", 0.3, 1.0, 1e-5),
+            ],
+            &["ukf".into()],
+            true,
+            Some(100),
+            500,
+        );
+        assert!(v.contains("Most accurate: ukf"), "{v}");
         let v = verdict(
             &[
                 filter("ukf", 0.100, 2.0, 2e-6),
                 filter("ekf", 0.102, 2.1, 5e-7),
                 filter("ckf", 0.2, 5.0, 2e-6),
                 filter("enkf", 0.3, 1.0, 1e-5),
-                failed,
-            ],
+                filter("pf", 0.0, 0.0, 1e-4),
+            ]
+            .into_iter()
+            .map(|mut f| {
+                if f.label == "pf" {
+                    f.status = Status::Failed;
+                    f.error = Some("particle collapse at step 3".into());
+                }
+                f
+            })
+            .collect::<Vec<_>>(),
+            &["ukf".into(), "ekf".into()],
             true,
             Some(100),
             500,
         );
-        assert!(v.contains("Most accurate: ukf"), "{v}");
-        assert!(v.contains("Within 5 % of it: ekf"), "{v}");
         assert!(
             v.contains("Over-confident") && v.contains("ckf (ANEES 5.00"),
             "{v}"
@@ -510,7 +693,7 @@ mod tests {
         assert!(v.contains("Under-confident") && v.contains("enkf"), "{v}");
         assert!(v.contains("pf failed: particle collapse"), "{v}");
         assert!(
-            v.contains("ekf is within 5 % of its accuracy at 4.0× lower cost"),
+            v.contains("ekf is as accurate (paired, 95 %) at 4.0× lower cost"),
             "{v}"
         );
         assert!(v.contains("not a universal ranking"), "{v}");
@@ -523,7 +706,7 @@ mod tests {
         let mut over = filter("pf", 0.12, 1e8, 1e-4);
         over.nees_tails = Some([0.01, 0.14]);
         over.anis = Some(1.3);
-        let v = verdict(&[good, over], true, None, 900);
+        let v = verdict(&[good, over], &["ekf".into()], true, None, 900);
         assert!(
             v.contains("State-consistent") && v.contains(": ekf."),
             "{v}"
@@ -545,7 +728,13 @@ mod tests {
         spiky.nees_tails = Some([0.02, 0.05]);
         let mut plain = filter("ekf", 1.0, 2.0, 1e-6);
         plain.nees_tails = Some([0.02, 0.03]);
-        let text = verdict(&[spiky, plain], true, None, 900);
+        let text = verdict(
+            &[spiky, plain],
+            &["pf".into(), "ekf".into()],
+            true,
+            None,
+            900,
+        );
         assert!(
             text.contains("pf: ANEES 200000 is far above its band [1.80, 2.20] yet only 5.0 %"),
             "{text}"

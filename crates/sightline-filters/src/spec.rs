@@ -1,6 +1,11 @@
 //! Filter specs: `KIND[:key=value[,key=value]...]`, e.g. `ukf:alpha=0.5,beta=2,kappa=0`.
 //!
 //! The spec string as given is the filter's label everywhere (tables, JSON, CSV).
+//!
+//! A **sweep** `key=a|b|c` ([`FilterSpec::expand`]) stands for one filter per value, each
+//! labelled by its full expanded spec (`pf:particles=500|2000` is `pf:particles=500` and
+//! `pf:particles=2000`), in the order given; several swept options expand to every combination,
+//! the first option varying slowest.
 
 use thiserror::Error;
 
@@ -131,6 +136,79 @@ impl FilterSpec {
             kind: kind.to_ascii_lowercase(),
             options,
         })
+    }
+
+    /// Expands a spec with sweeps (`key=a|b|c`) into one spec per combination of values, in
+    /// the order given (the first swept option varying slowest), each labelled by its expanded
+    /// spec string. A spec without a sweep is [`FilterSpec::parse`]d as it is (label unchanged).
+    ///
+    /// ```
+    /// use sightline_filters::FilterSpec;
+    /// let specs = FilterSpec::expand("pf:particles=500|2000|8000,resample=systematic").unwrap();
+    /// let labels: Vec<&str> = specs.iter().map(|s| s.label.as_str()).collect();
+    /// assert_eq!(labels, [
+    ///     "pf:particles=500,resample=systematic",
+    ///     "pf:particles=2000,resample=systematic",
+    ///     "pf:particles=8000,resample=systematic",
+    /// ]);
+    /// assert_eq!(specs[1].options[0], ("particles".to_string(), "2000".to_string()));
+    /// assert!(FilterSpec::expand("pf:particles=500|").is_err());
+    /// ```
+    pub fn expand(spec: &str) -> Result<Vec<Self>, SpecError> {
+        let base = Self::parse(spec)?;
+        if !base.options.iter().any(|(_, v)| v.contains('|')) {
+            return Ok(vec![base]);
+        }
+        let mut choices: Vec<(String, Vec<String>)> = Vec::with_capacity(base.options.len());
+        for (key, value) in &base.options {
+            let values: Vec<String> = value.split('|').map(|v| v.trim().to_string()).collect();
+            if values.iter().any(String::is_empty) {
+                return Err(SpecError::Syntax {
+                    spec: spec.trim().to_string(),
+                    reason: format!("the sweep '{key}={value}' has an empty value"),
+                });
+            }
+            if let Some(v) = values
+                .iter()
+                .enumerate()
+                .find_map(|(i, v)| values[..i].contains(v).then_some(v))
+            {
+                return Err(SpecError::Syntax {
+                    spec: spec.trim().to_string(),
+                    reason: format!("the sweep '{key}={value}' gives '{v}' twice"),
+                });
+            }
+            choices.push((key.clone(), values));
+        }
+        let kind_text = spec.trim().split_once(':').map_or("", |(k, _)| k.trim());
+        let mut combos: Vec<Vec<(String, String)>> = vec![Vec::new()];
+        for (key, values) in &choices {
+            combos = combos
+                .into_iter()
+                .flat_map(|prefix| {
+                    values.iter().map(move |v| {
+                        let mut c = prefix.clone();
+                        c.push((key.clone(), v.clone()));
+                        c
+                    })
+                })
+                .collect();
+        }
+        Ok(combos
+            .into_iter()
+            .map(|options| {
+                let text = options
+                    .iter()
+                    .map(|(k, v)| format!("{k}={v}"))
+                    .collect::<Vec<_>>()
+                    .join(",");
+                FilterSpec {
+                    label: format!("{kind_text}:{text}"),
+                    kind: base.kind.clone(),
+                    options,
+                }
+            })
+            .collect())
     }
 
     /// Option reader that rejects keys outside `valid`.
@@ -304,6 +382,24 @@ mod tests {
         assert!(s.options.is_empty());
         let s = FilterSpec::parse("ukf: alpha = 0.5 ").unwrap();
         assert_eq!(s.options, vec![("alpha".into(), "0.5".into())]);
+    }
+
+    #[test]
+    fn sweeps_expand_every_combination_in_order() {
+        let specs = FilterSpec::expand("ukf:alpha=0.1|1, kappa=0|2").unwrap();
+        let labels: Vec<&str> = specs.iter().map(|s| s.label.as_str()).collect();
+        assert_eq!(
+            labels,
+            [
+                "ukf:alpha=0.1,kappa=0",
+                "ukf:alpha=0.1,kappa=2",
+                "ukf:alpha=1,kappa=0",
+                "ukf:alpha=1,kappa=2"
+            ]
+        );
+        // Without a sweep the label is the spec as given.
+        assert_eq!(FilterSpec::expand(" ekf ").unwrap()[0].label, "ekf");
+        assert!(FilterSpec::expand("pf:particles=5|5").is_err());
     }
 
     #[test]

@@ -22,6 +22,7 @@ use crate::dataset::time::Clock;
 use crate::error::{Error, Result};
 use crate::output::{Catching, OutputDir};
 use crate::plant::AnyPlant;
+use crate::ranking::{self, StepRecord};
 use crate::report::{self, terminal_table};
 use crate::runner::{
     self, EstimatesWriter, NoObserver, Observer, RunConfig, RunOutcome, Series, Smoothing,
@@ -176,7 +177,8 @@ impl Comparison {
 /// The summary of one run of a set of filters over one dataset.
 pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
-    let filters: Vec<FilterSummary> = outcome
+    let n = states.len();
+    let mut filters: Vec<FilterSummary> = outcome
         .filters
         .iter()
         .map(|f| {
@@ -186,8 +188,21 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
             FilterSummary {
                 label: f.label.clone(),
                 kind: f.kind.clone(),
-                status: if ok { Status::Ok } else { Status::Failed },
+                status: match (ok, &f.divergence) {
+                    (false, _) => Status::Failed,
+                    (true, Some(_)) => Status::Diverged,
+                    (true, None) => Status::Ok,
+                },
                 error: f.error.clone(),
+                rmse_all_ci: if ok && m.rmse_all().is_some() {
+                    crate::intervals::rmse_interval(&m.squared_errors, n)
+                } else {
+                    None
+                },
+                diverged_at: f.divergence.as_ref().map(|d| d.step),
+                divergence: f.divergence.as_ref().map(|d| d.reason.clone()),
+                diverged_runs: None,
+                versus_best: None,
                 rmse: if ok {
                     m.rmse()
                         .map(|r| StateMap(states.iter().cloned().zip(r).collect()))
@@ -236,7 +251,16 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
             }
         })
         .collect();
-    let verdict = verdict::verdict(&filters, outcome.truth, None, outcome.steps);
+    let records: Vec<StepRecord<'_>> = outcome
+        .filters
+        .iter()
+        .map(|f| StepRecord {
+            squared_errors: &f.metrics.squared_errors,
+            log_likelihoods: &f.metrics.log_likelihoods,
+        })
+        .collect();
+    let (best, best_by) = ranking::rank_single(&mut filters, &records, outcome.truth);
+    let verdict = verdict::verdict(&filters, &best, outcome.truth, None, outcome.steps);
     Summary {
         command: "compare".into(),
         model: plant.name().to_string(),
@@ -244,6 +268,8 @@ pub fn summarise(plant: &dyn AnyPlant, outcome: &RunOutcome) -> Summary {
         settings: None,
         ignored_columns: Vec::new(),
         truth: outcome.truth,
+        best,
+        best_by,
         criteria: summary::criteria(outcome.truth, false),
         filters,
         verdict,
@@ -502,8 +528,8 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     let shown_already = notes.len();
     let context = ResultContext {
         title: format!(
-            "Sightline: {} filters on {} ({})",
-            specs.len(),
+            "Sightline: {} on {} ({})",
+            verdict::count(specs.len(), "filter"),
             plant.name(),
             args.data.display()
         ),

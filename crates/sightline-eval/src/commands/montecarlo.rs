@@ -70,6 +70,10 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        log_x: false,
+        y_range: None,
+        clipped: Vec::new(),
+        gaps: Vec::new(),
         clock: None,
         caption: "Average over the runs of each step's NEES; a consistent filter keeps about 95 % \
                   of the steps inside the band (Bar-Shalom et al. 2001, §5.4)."
@@ -93,6 +97,10 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
         lines: Vec::new(),
         dots: Vec::new(),
         log_y: true,
+        log_x: false,
+        y_range: None,
+        clipped: Vec::new(),
+        gaps: Vec::new(),
         clock: None,
         caption: "Average over the runs of each step's NIS against the band of an average of \
                   M χ²(m) values."
@@ -125,6 +133,7 @@ pub fn campaign_plots(totals: &Totals, summary: &Summary) -> Vec<Plot> {
     }
     plots.push(Plot::Lines(nees));
     plots.push(Plot::Lines(nis));
+    plots.extend(report::accuracy_cost_plot(summary));
     plots.extend(report::bar_plots(summary));
     plots
 }
@@ -173,8 +182,8 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
         totals.campaign.seed, totals.campaign.model, totals.campaign.steps
     ));
     let title = format!(
-        "Sightline Monte Carlo: {} filters on {}, {} runs × {} steps",
-        totals.filters.len(),
+        "Sightline Monte Carlo: {} on {}, {} runs × {} steps",
+        crate::verdict::count(totals.filters.len(), "filter"),
         totals.campaign.model,
         totals.runs_covered(),
         totals.campaign.steps
