@@ -15,6 +15,8 @@ pub mod error;
 pub mod exact_sum;
 pub mod interrupt;
 pub mod metrics;
+pub mod observability;
+pub mod observability_report;
 pub mod output;
 pub mod partial;
 pub mod pcrlb;

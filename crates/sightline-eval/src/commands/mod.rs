@@ -9,6 +9,7 @@ pub mod demo;
 pub mod merge;
 pub mod models;
 pub mod montecarlo;
+pub mod observe;
 pub mod simulate;
 pub mod tune;
 
@@ -89,6 +90,26 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 filter,
                 params,
                 seed,
+                output,
+            },
+        ),
+        Command::Observe {
+            plant,
+            data,
+            dataset,
+            sensors,
+            compare_sensors,
+            steps,
+            output,
+        } => observe::run(
+            plants,
+            &observe::ObserveArgs {
+                plant,
+                data,
+                dataset,
+                sensors,
+                compare_sensors,
+                steps,
                 output,
             },
         ),
