@@ -21,7 +21,7 @@
 //! prior's own (1). The numerical rank counts the singular values of J_s above
 //! `n·ε·max(σ_max, 1)`: numpy's `matrix_rank` rule (common practice) on the matrix we hold, with
 //! the floor that information below rounding of the prior's own information is none.
-//! `conditioning` is σ_max/σ_min of J_s (`null` when σ_min is zero).
+//! `conditioning` is σ_max/σ_min of J_s (`null` when J_s is numerically singular).
 //!
 //! **Per state.** The null space N (eigenvectors of J_s at the rank-deficient singular values)
 //! holds the directions no measurement sees. State i is observable iff eᵢ is orthogonal to N
@@ -58,8 +58,12 @@ use crate::settings::Settings;
 /// subspace counts as observable (cosine of its angle to the observable subspace ≥ 1 − 10⁻¹²).
 pub const ORTHOGONAL_TOL: f64 = 1e-6;
 
-/// Coefficients of a direction below this fraction of its largest are left out of its text.
-const SHOWN_COEFFICIENT: f64 = 1e-9;
+/// Coefficients of a direction below this fraction of its largest are set to zero.
+const KEPT_COEFFICIENT: f64 = 1e-9;
+
+/// Coefficients below this fraction of the largest are left out of a direction's text (which
+/// then ends in "+ …"); the numeric vector keeps them.
+const SHOWN_COEFFICIENT: f64 = 1e-4;
 
 /// How well a state (or a whole sensor set) is seen.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
@@ -124,7 +128,7 @@ pub struct SensorSet {
     pub rank: usize,
     /// Singular values of J_s = S J S, largest first.
     pub singular_values: Vec<f64>,
-    /// σ_max/σ_min of J_s; `null` when σ_min is zero.
+    /// σ_max/σ_min of J_s; `null` when J_s is numerically singular (rank below n).
     pub conditioning: Option<f64>,
     /// The worst state's reading.
     pub reading: Reading,
@@ -240,9 +244,9 @@ where
     for (k, rec) in rows.iter().enumerate() {
         let state = |rec: &Record| -> Result<OVector<f64, M::State>> {
             match &rec.x {
-                Some(x) if x.len() == nv => {
-                    Ok(OVector::<f64, M::State>::from_column_slice_generic(n, U1, x))
-                }
+                Some(x) if x.len() == nv => Ok(
+                    OVector::<f64, M::State>::from_column_slice_generic(n, U1, x),
+                ),
                 _ => Err(Error::Run(format!(
                     "observability: row {k} has no true state of the plant's size"
                 ))),
@@ -334,13 +338,19 @@ pub fn analyse(
     scaled = (&scaled + scaled.transpose()) * 0.5;
     let eigen = SymmetricEigen::new(scaled);
     let mut order: Vec<usize> = (0..n).collect();
-    order.sort_by(|&a, &b| eigen.eigenvalues[b].abs().total_cmp(&eigen.eigenvalues[a].abs()));
+    order.sort_by(|&a, &b| {
+        eigen.eigenvalues[b]
+            .abs()
+            .total_cmp(&eigen.eigenvalues[a].abs())
+    });
     let singular_values: Vec<f64> = order.iter().map(|&i| eigen.eigenvalues[i].abs()).collect();
     let largest = singular_values.first().copied().unwrap_or(0.0);
     let tol = n as f64 * f64::EPSILON * largest.max(1.0);
     let rank = singular_values.iter().filter(|s| **s > tol).count();
+    // Numerically singular: the ratio of rounding-level values would say nothing.
     let conditioning = singular_values
         .last()
+        .filter(|_| rank == n)
         .map(|smallest| largest / smallest)
         .filter(|c| c.is_finite());
     let vector = |k: usize, i: usize| eigen.eigenvectors[(i, order[k])];
@@ -440,7 +450,7 @@ fn echelon(mut rows: Vec<Vec<f64>>) -> Vec<Vec<f64>> {
     for row in &mut rows {
         let top = row.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         for v in row.iter_mut() {
-            if v.abs() <= SHOWN_COEFFICIENT * top {
+            if v.abs() <= KEPT_COEFFICIENT * top {
                 *v = 0.0;
             }
         }
@@ -448,23 +458,30 @@ fn echelon(mut rows: Vec<Vec<f64>>) -> Vec<Vec<f64>> {
     rows
 }
 
-/// `h2 + 0.5 h4 − 2 h5`: the nonzero coefficients with their state names.
+/// `h2 + 0.5 h4 − 2 h5`: the coefficients with their state names, the small ones left out.
 fn combination_text(coefficients: &[f64], names: &[String]) -> String {
+    let top = coefficients.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
     let mut text = String::new();
+    let mut left_out = false;
     for (c, name) in coefficients.iter().zip(names).filter(|(c, _)| **c != 0.0) {
-        let magnitude = c.abs();
-        let sign = if text.is_empty() {
-            if *c < 0.0 { "−" } else { "" }
-        } else if *c < 0.0 {
-            " − "
-        } else {
-            " + "
+        if c.abs() < SHOWN_COEFFICIENT * top {
+            left_out = true;
+            continue;
+        }
+        let sign = match (text.is_empty(), *c < 0.0) {
+            (true, false) => "",
+            (true, true) => "−",
+            (false, false) => " + ",
+            (false, true) => " − ",
         };
         text.push_str(sign);
-        if (magnitude - 1.0).abs() > 1e-9 {
-            text.push_str(&format!("{} ", crate::verdict::sig(magnitude, 4)));
+        if (c.abs() - 1.0).abs() > 1e-9 {
+            text.push_str(&format!("{} ", crate::verdict::sig(c.abs(), 4)));
         }
         text.push_str(name);
+    }
+    if left_out {
+        text.push_str(" + …");
     }
     text
 }

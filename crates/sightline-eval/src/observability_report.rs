@@ -257,7 +257,10 @@ pub fn render(plant: &dyn AnyPlant, result: &Observability) -> Result<String> {
             escape(&settings.rerun_line())
         ));
     }
-    html.push_str(&format!("<p>{}</p>\n", escape(&crate::plant::parameters_text(plant))));
+    html.push_str(&format!(
+        "<p>{}</p>\n",
+        escape(&crate::plant::parameters_text(plant))
+    ));
     html.push_str("</body></html>\n");
     Ok(html)
 }

@@ -28,6 +28,9 @@ use crate::verdict::sig;
 /// Rows of the simulated window when neither data nor `--steps` is given.
 pub const DEFAULT_STEPS: usize = 100;
 
+/// Unobservable directions listed on the terminal (all of them are in the JSON and the report).
+const SHOWN_DIRECTIONS: usize = 8;
+
 /// Arguments of `observe`.
 #[derive(Debug, Clone)]
 pub struct ObserveArgs {
@@ -69,7 +72,12 @@ pub fn trajectory(
     let (reader, notes) = open_dataset(plant, &args.plant, path, &args.dataset)?;
     let mut data = reader.read_all()?;
     if data.records.is_empty() {
-        return Err(Error::data(path, 2, 1, "the dataset has a header but no rows"));
+        return Err(Error::data(
+            path,
+            2,
+            1,
+            "the dataset has a header but no rows",
+        ));
     }
     if let Some(k) = args.steps {
         if k > data.records.len() {
@@ -189,12 +197,19 @@ pub fn set_line(set: &SensorSet) -> String {
         set.reading.words()
     );
     if !set.unobservable_directions.is_empty() {
-        let dirs: Vec<&str> = set
-            .unobservable_directions
+        let all = &set.unobservable_directions;
+        let dirs: Vec<&str> = all
             .iter()
+            .take(SHOWN_DIRECTIONS)
             .map(|d| d.combination.as_str())
             .collect();
         line.push_str(&format!("; unseen: {}", dirs.join("; ")));
+        if all.len() > SHOWN_DIRECTIONS {
+            line.push_str(&format!(
+                "; … ({} directions in all, in observability.json)",
+                all.len()
+            ));
+        }
     }
     line
 }
