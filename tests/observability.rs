@@ -363,3 +363,152 @@ fn bad_sensor_lists_are_refused() {
         assert!(!o.exists());
     }
 }
+
+/// Copies the dataset `data` to `out` with the column `column` left empty on every row (a
+/// sensor that was never connected).
+fn blank_column(data: &Path, out: &Path, column: &str) {
+    let mut reader = csv::Reader::from_path(data).unwrap();
+    let header = reader.headers().unwrap().clone();
+    let at = header.iter().position(|h| h == column).unwrap();
+    let mut w = csv::Writer::from_path(out).unwrap();
+    w.write_record(&header).unwrap();
+    for r in reader.records() {
+        let r = r.unwrap();
+        let row: Vec<&str> = (0..r.len())
+            .map(|i| if i == at { "" } else { &r[i] })
+            .collect();
+        w.write_record(&row).unwrap();
+    }
+    w.flush().unwrap();
+}
+
+/// `compare` on quadtank data whose level2 sensor is empty: h2 and h4 are not observable
+/// (Johansson 2000's flow structure, as above), so the report gains its "Observability"
+/// section. A five-member ensemble Kalman filter shrinks its spread on them through the
+/// sampling error of its gain (spurious correlations of a small ensemble; Houtekamer & Mitchell,
+/// Mon. Weather Rev. 126, 1998, from memory) and the verdict warns about it; the EKF, whose
+/// covariance follows the same prior and process noise the bound uses, gets no warning. With
+/// both sensors there is neither section nor warning.
+#[test]
+fn compare_reports_unobservable_states_and_unearned_confidence() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("quad.csv");
+    let blind = dir.path().join("blind.csv");
+    expect(
+        &[
+            "simulate",
+            "quadtank",
+            "--steps",
+            "300",
+            "--seed",
+            "2",
+            "-o",
+            s(&data),
+        ],
+        0,
+    );
+    blank_column(&data, &blind, "y.level2");
+    let out = dir.path().join("blind");
+    let stdout = expect(
+        &[
+            "compare",
+            "quadtank",
+            s(&blind),
+            "-f",
+            "ekf",
+            "-f",
+            "enkf:members=5",
+            "-o",
+            s(&out),
+        ],
+        0,
+    );
+    let summary = json(&out.join("summary.json"));
+    let verdict = summary["verdict"].as_str().unwrap();
+    for state in ["h2", "h4"] {
+        assert!(
+            verdict.contains("Warning: enkf:members=5 reports sd")
+                && verdict.contains(&format!(" on {state} at t = ")),
+            "{verdict}"
+        );
+    }
+    assert!(!verdict.contains("Warning: ekf "), "{verdict}");
+    assert!(stdout.contains("a state the sensors cannot see"));
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("<h2 id=\"observability\">Observability</h2>"));
+    assert!(
+        html.contains("Sensors level1, level2: rank 2 of 4"),
+        "{html}"
+    );
+    assert!(html.contains("h2; h4"));
+
+    let seen = dir.path().join("seen");
+    expect(
+        &[
+            "compare",
+            "quadtank",
+            s(&data),
+            "-f",
+            "ekf",
+            "-f",
+            "enkf:members=5",
+            "-o",
+            s(&seen),
+        ],
+        0,
+    );
+    let verdict = json(&seen.join("summary.json"))["verdict"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert!(!verdict.contains("cannot see"), "{verdict}");
+    let html = std::fs::read_to_string(seen.join("report.html")).unwrap();
+    assert!(!html.contains("id=\"observability\""));
+}
+
+/// `montecarlo` follows the nominal run: the tank chain's first tanks are known no better from
+/// the last level than from the prior over 50 s (weakly observable), so its report has the
+/// section; the cv plant's does not.
+#[test]
+fn montecarlo_reports_weakly_observable_states() {
+    let dir = tempfile::tempdir().unwrap();
+    let chain = dir.path().join("chain");
+    expect(
+        &[
+            "montecarlo",
+            "tankchain",
+            "--set",
+            "n=4",
+            "--runs",
+            "2",
+            "--steps",
+            "50",
+            "-f",
+            "ekf",
+            "-o",
+            s(&chain),
+        ],
+        0,
+    );
+    let html = std::fs::read_to_string(chain.join("report.html")).unwrap();
+    assert!(html.contains("id=\"observability\""));
+    assert!(html.contains("weakly observable"));
+    let cv = dir.path().join("cv");
+    expect(
+        &[
+            "montecarlo",
+            "cv",
+            "--runs",
+            "2",
+            "--steps",
+            "50",
+            "-f",
+            "kf",
+            "-o",
+            s(&cv),
+        ],
+        0,
+    );
+    let html = std::fs::read_to_string(cv.join("report.html")).unwrap();
+    assert!(!html.contains("id=\"observability\""));
+}

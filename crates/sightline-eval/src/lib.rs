@@ -16,6 +16,7 @@ pub mod exact_sum;
 pub mod interrupt;
 pub mod metrics;
 pub mod observability;
+pub mod observability_check;
 pub mod observability_report;
 pub mod output;
 pub mod partial;

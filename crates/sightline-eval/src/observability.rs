@@ -51,6 +51,7 @@ use sightline_filters::linearise::{measurement_jacobian, transition_jacobian};
 
 use crate::dataset::{Dataset, Record};
 use crate::error::{Error, Result};
+use crate::pcrlb::Bound;
 use crate::plant::AnyPlant;
 use crate::settings::Settings;
 
@@ -488,13 +489,14 @@ fn combination_text(coefficients: &[f64], names: &[String]) -> String {
 
 /// The answer for one sensor set (indices into the plant's measurements) along `trajectory`
 /// (every row with its state), with the PCRLB per state at the last row where the plant's
-/// process noise allows it (a note says why not otherwise).
+/// process noise allows it (a note says why not otherwise); also returns that bound over the
+/// whole window.
 pub fn sensor_set(
     plant: &dyn AnyPlant,
     trajectory: &Dataset,
     chosen: &[usize],
     notes: &mut Vec<String>,
-) -> Result<SensorSet> {
+) -> Result<(SensorSet, Option<Bound>)> {
     let measurements = plant.measurements();
     let states = plant.states();
     let flags: Vec<bool> = (0..measurements.len())
@@ -521,20 +523,24 @@ pub fn sensor_set(
             }
         }
     }
-    match plant.pcrlb(&[masked]) {
+    let bound = match plant.pcrlb(&[masked]) {
         Ok(bound) => {
             if let Some(last) = bound.variance.last() {
                 for (s, v) in set.states.iter_mut().zip(last) {
                     s.pcrlb_sd = Some(v.max(0.0).sqrt());
                 }
             }
+            Some(bound)
         }
-        Err(e) => notes.push(format!(
-            "no Cramér–Rao bound with process noise for sensors {}: {e}",
-            sensors.join(",")
-        )),
-    }
-    Ok(set)
+        Err(e) => {
+            notes.push(format!(
+                "no Cramér–Rao bound with process noise for sensors {}: {e}",
+                sensors.join(",")
+            ));
+            None
+        }
+    };
+    Ok((set, bound))
 }
 
 /// Parses a `--sensors` list (`level1,level2`) into measurement indices, in the order given.

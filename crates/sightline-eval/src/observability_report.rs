@@ -181,6 +181,21 @@ const EXPLANATION: &str = "The sd bound is √((J⁻¹)ᵢᵢ) of the informatio
     the bound is no smaller than the prior's sd; the PCRLB column adds the prior and the \
     process noise and is read at the last row.";
 
+/// Which trajectory was followed, as a paragraph.
+fn along(result: &Observability) -> String {
+    let what = match result.trajectory {
+        TrajectorySource::Truth => "the data's true trajectory",
+        TrajectorySource::Prediction => {
+            "the noise-free prediction from the prior mean through the data's times and inputs \
+             (the data has no truth)"
+        }
+        TrajectorySource::Simulation => {
+            "the noise-free simulation from the prior mean with the constant inputs"
+        }
+    };
+    format!("<p>Along {what}, {} rows.</p>\n", result.steps)
+}
+
 /// `report.html` of `observe`.
 pub fn render(plant: &dyn AnyPlant, result: &Observability) -> Result<String> {
     let title = format!("Sightline: observability of {}", plant.name());
@@ -196,20 +211,10 @@ pub fn render(plant: &dyn AnyPlant, result: &Observability) -> Result<String> {
          </head><body>\n",
     );
     html.push_str(&format!("<h1>{}</h1>\n", escape(&title)));
-    let along = match result.trajectory {
-        TrajectorySource::Truth => "the data's true trajectory",
-        TrajectorySource::Prediction => {
-            "the noise-free prediction from the prior mean through the data's times and inputs \
-             (the data has no truth)"
-        }
-        TrajectorySource::Simulation => {
-            "the noise-free simulation from the prior mean with the constant inputs"
-        }
-    };
     html.push_str(&format!(
-        "<div class=\"verdict\">{}<p>Along {along}, {} rows.</p></div>\n",
+        "<div class=\"verdict\">{}{}</div>\n",
         set_paragraph(&result.result),
-        result.steps
+        along(result)
     ));
     html.push_str(&format!("<p>{}</p>\n", escape(EXPLANATION)));
     html.push_str(&state_table(&result.result));
@@ -274,6 +279,7 @@ pub fn section(result: &Observability, warnings: &[String]) -> Option<String> {
     }
     let mut html = String::from("<h2 id=\"observability\">Observability</h2>\n");
     html.push_str(&set_paragraph(&result.result));
+    html.push_str(&along(result));
     html.push_str(&format!("<p>{}</p>\n", escape(EXPLANATION)));
     html.push_str(&state_table(&result.result));
     for w in warnings {

@@ -118,10 +118,10 @@ pub fn observe(
         None => Vec::new(),
     };
     let mut notes = Vec::new();
-    let result = sensor_set(plant, trajectory, &chosen, &mut notes)?;
+    let (result, _) = sensor_set(plant, trajectory, &chosen, &mut notes)?;
     let sensor_sets = sets
         .iter()
-        .map(|set| sensor_set(plant, trajectory, set, &mut notes))
+        .map(|set| sensor_set(plant, trajectory, set, &mut notes).map(|(s, _)| s))
         .collect::<Result<Vec<_>>>()?;
     notes.dedup();
     Ok(Observability {
