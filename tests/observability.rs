@@ -436,10 +436,7 @@ fn compare_reports_unobservable_states_and_unearned_confidence() {
     assert!(stdout.contains("a state the sensors cannot see"));
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(html.contains("<h2 id=\"observability\">Observability</h2>"));
-    assert!(
-        html.contains("Sensors level1, level2: rank 2 of 4"),
-        "{html}"
-    );
+    assert!(html.contains("Sensors level1: rank 2 of 4"), "{html}");
     assert!(html.contains("h2; h4"));
 
     let seen = dir.path().join("seen");

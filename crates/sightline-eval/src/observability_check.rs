@@ -97,9 +97,17 @@ pub fn check(plant: &dyn AnyPlant, layout: &Layout, rows: Vec<Record>) -> Result
         records: rows,
     };
     let (trajectory, all_truth) = plant.fill_states(&data)?;
-    let every: Vec<usize> = (0..plant.measurements().len()).collect();
+    // The sensors the data carries: a column left empty throughout is no sensor.
+    let present: Vec<usize> = (0..plant.measurements().len())
+        .filter(|&i| {
+            trajectory
+                .records
+                .iter()
+                .any(|r| r.y.get(i).is_some_and(|y| !y.is_nan()))
+        })
+        .collect();
     let mut notes = Vec::new();
-    let (result, bound) = sensor_set(plant, &trajectory, &every, &mut notes)?;
+    let (result, bound) = sensor_set(plant, &trajectory, &present, &mut notes)?;
     let bound_sd = bound
         .map(|b| {
             b.variance

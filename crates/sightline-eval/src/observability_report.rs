@@ -22,11 +22,13 @@ fn cell(v: Option<f64>) -> String {
     v.map_or_else(|| "–".to_string(), |v| sig(v, 4))
 }
 
-/// The sensor sets a report shows: the chosen one, then each compared one.
-fn all_sets(result: &Observability) -> Vec<&SensorSet> {
-    std::iter::once(&result.result)
-        .chain(&result.sensor_sets)
-        .collect()
+/// The sensor sets the chart shows: the compared ones, else the chosen one.
+fn charted_sets(result: &Observability) -> Vec<&SensorSet> {
+    if result.sensor_sets.is_empty() {
+        vec![&result.result]
+    } else {
+        result.sensor_sets.iter().collect()
+    }
 }
 
 /// Grouped bars: per state one bar per sensor set, the height log₁₀ of its bound (`sd_bound`);
@@ -46,7 +48,8 @@ pub fn bound_chart(sets: &[&SensorSet]) -> Result<String> {
         logs.iter().copied().reduce(f64::min),
         logs.iter().copied().reduce(f64::max),
     ) {
-        (Some(lo), Some(hi)) => (lo.floor() - 1.0, hi.ceil() + 0.5),
+        // Headroom above the bars for the legend.
+        (Some(lo), Some(hi)) => (lo.floor() - 1.0, hi.ceil() + 1.5),
         _ => (-1.0, 1.0),
     };
     let mut svg = String::new();
@@ -118,6 +121,7 @@ pub fn bound_chart(sets: &[&SensorSet]) -> Result<String> {
         }
         chart
             .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
             .border_style(RGBColor(200, 200, 200))
             .background_style(WHITE.mix(0.9))
             .draw()
@@ -248,7 +252,7 @@ pub fn render(plant: &dyn AnyPlant, result: &Observability) -> Result<String> {
             html.push_str(&set_paragraph(s));
         }
     }
-    let chart = bound_chart(&all_sets(result))?;
+    let chart = bound_chart(&charted_sets(result))?;
     html.push_str(&format!(
         "<figure class=\"plot\" data-plot=\"bounds\">{chart}<figcaption>Per state and sensor \
          set, the sd bound from the measurements only (∞: not observable).</figcaption></figure>\n"
