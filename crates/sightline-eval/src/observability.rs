@@ -578,3 +578,64 @@ pub fn parse_sensors(plant: &dyn AnyPlant, list: &str, option: &str) -> Result<V
     }
     Ok(chosen)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn names(list: &[&str]) -> Vec<String> {
+        list.iter().map(|s| s.to_string()).collect()
+    }
+
+    /// y₁ = a + b, y₂ = c, unit noise, one row: J = [[1, 1, 0], [1, 1, 0], [0, 0, 1]]. Only
+    /// a + b and c are seen; the null space is a − b, so neither a nor b is observable and c has
+    /// bound √(1/1) = 1 (closed form, common practice). Prior scales change neither answer.
+    #[test]
+    fn a_measured_sum_leaves_the_difference_unseen() {
+        #[rustfmt::skip]
+        let j = [
+            1.0, 1.0, 0.0,
+            1.0, 1.0, 0.0,
+            0.0, 0.0, 1.0,
+        ];
+        for prior in [[1.0, 1.0, 1.0], [2.0, 0.5, 10.0]] {
+            let a = analyse(&j, &names(&["a", "b", "c"]), &prior, vec![]).unwrap();
+            assert_eq!(a.rank, 2);
+            assert_eq!(
+                a.states.iter().map(|s| s.observable).collect::<Vec<_>>(),
+                [false, false, true]
+            );
+            assert!((a.states[2].sd_bound.unwrap() - 1.0).abs() < 1e-12);
+            assert_eq!(a.unobservable_directions.len(), 1);
+            assert_eq!(a.unobservable_directions[0].combination, "a − b");
+            let c = &a.unobservable_directions[0].coefficients;
+            assert!((c[0] - 1.0).abs() < 1e-12 && (c[1] + 1.0).abs() < 1e-12 && c[2] == 0.0);
+            assert!(a.conditioning.is_none());
+        }
+    }
+
+    /// A full-rank J: the bound is √diag(J⁻¹) (closed form of the 2×2 inverse) and the reading
+    /// compares it with the prior's sd.
+    #[test]
+    fn full_rank_bounds_are_the_inverse_diagonal() {
+        // J = [[4, 2], [2, 2]]: J⁻¹ = [[0.5, −0.5], [−0.5, 1]].
+        let j = [4.0, 2.0, 2.0, 2.0];
+        let a = analyse(&j, &names(&["p", "q"]), &[1.0, 0.9], vec![]).unwrap();
+        assert_eq!(a.rank, 2);
+        assert!((a.states[0].sd_bound.unwrap() - 0.5_f64.sqrt()).abs() < 1e-12);
+        assert!((a.states[1].sd_bound.unwrap() - 1.0).abs() < 1e-12);
+        assert_eq!(a.states[0].reading, Reading::Well);
+        assert_eq!(a.states[1].reading, Reading::Weakly);
+        assert_eq!(a.reading, Reading::Weakly);
+        assert!(a.unobservable_directions.is_empty());
+    }
+
+    /// Information far below rounding of the prior's own is none (the floor of the rank rule).
+    #[test]
+    fn rounding_level_information_is_no_information() {
+        let j = [1e-33, 0.0, 0.0, 1e-34];
+        let a = analyse(&j, &names(&["x", "y"]), &[0.1, 0.2], vec![]).unwrap();
+        assert_eq!(a.rank, 0);
+        assert_eq!(a.reading, Reading::Not);
+    }
+}
