@@ -261,6 +261,28 @@ pub enum Command {
         #[arg(short = 'o', long = "output", value_name = "DIR")]
         output: PathBuf,
     },
+    /// Observability along a trajectory: which states the sensors can see, and how well.
+    Observe {
+        #[command(flatten)]
+        plant: PlantArgs,
+        /// Dataset CSV whose trajectory is followed (its truth, else the noise-free prediction
+        /// through its inputs); without it, the noise-free simulation from the prior mean.
+        data: Option<PathBuf>,
+        #[command(flatten)]
+        dataset: DatasetArgs,
+        /// Keep only these measurement components, e.g. level1 (default: all).
+        #[arg(long, value_name = "NAME,...")]
+        sensors: Option<String>,
+        /// Compare sensor sets side by side, e.g. 'level1|level2|level1,level2'.
+        #[arg(long = "compare-sensors", value_name = "A|B,C")]
+        compare_sensors: Option<String>,
+        /// Rows of the window (default: every row of the data, or 100 simulated).
+        #[arg(long, value_name = "K")]
+        steps: Option<usize>,
+        /// Output directory.
+        #[arg(short = 'o', long = "output", value_name = "DIR")]
+        output: PathBuf,
+    },
     /// The built-in scenario: simulate, compare, report.
     Demo {
         /// Output directory.

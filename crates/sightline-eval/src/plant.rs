@@ -70,6 +70,14 @@ pub trait AnyPlant: Send + Sync {
     fn pcrlb(&self, truths: &[Dataset]) -> Result<Bound>;
     /// One trajectory's information terms for the bound (see [`crate::pcrlb::information_terms`]).
     fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>>;
+    /// `data` with each row's missing true state filled by the noise-free prediction from the
+    /// previous row (the prior mean at row 0), and whether every row had its own (see
+    /// [`crate::observability::fill_states`]).
+    fn fill_states(&self, data: &Dataset) -> Result<(Dataset, bool)>;
+    /// The information the measurement components `sensors[i]` carry about the first row's
+    /// state along `trajectory` (see [`crate::observability::information`]).
+    fn observability_information(&self, trajectory: &Dataset, sensors: &[bool])
+    -> Result<Vec<f64>>;
 }
 
 impl Clone for Box<dyn AnyPlant> {
@@ -462,5 +470,17 @@ where
 
     fn pcrlb_terms(&self, truth: &Dataset) -> Result<Vec<Vec<f64>>> {
         information_terms(&self.model, truth)
+    }
+
+    fn fill_states(&self, data: &Dataset) -> Result<(Dataset, bool)> {
+        crate::observability::fill_states(&self.model, &self.prior_gaussian().mean, data)
+    }
+
+    fn observability_information(
+        &self,
+        trajectory: &Dataset,
+        sensors: &[bool],
+    ) -> Result<Vec<f64>> {
+        crate::observability::information(&self.model, trajectory, sensors)
     }
 }

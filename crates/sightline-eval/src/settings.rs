@@ -42,7 +42,7 @@ pub struct DatasetSettings {
 pub struct Settings {
     /// The Sightline version.
     pub sightline_version: String,
-    /// `compare`, `montecarlo` or `tune` (a merged campaign keeps `montecarlo`).
+    /// `compare`, `montecarlo`, `tune` or `observe` (a merged campaign keeps `montecarlo`).
     pub command: String,
     /// Model name.
     pub model: String,
@@ -69,7 +69,7 @@ pub struct Settings {
     /// `montecarlo --runs`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub runs: Option<u64>,
-    /// `montecarlo --steps`.
+    /// `montecarlo --steps` (`observe --steps` when given).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub steps: Option<u64>,
     /// `montecarlo --every`.
@@ -84,6 +84,12 @@ pub struct Settings {
     /// `montecarlo --shard K/N` (absent for a whole or merged campaign).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shard: Option<String>,
+    /// `observe --sensors`, as given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sensors: Option<String>,
+    /// `observe --compare-sensors`, as given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub compare_sensors: Option<String>,
 }
 
 impl Settings {
@@ -161,7 +167,10 @@ impl Settings {
         if let Some(steps) = self.steps {
             flag("--steps", steps.to_string());
         }
-        flag("--seed", self.seed.to_string());
+        // `observe` draws no random numbers, so it has no seed.
+        if self.command != "observe" {
+            flag("--seed", self.seed.to_string());
+        }
         for f in &self.filters {
             flag("-f", f.clone());
         }
@@ -195,6 +204,12 @@ impl Settings {
         }
         if let Some(shard) = &self.shard {
             flag("--shard", shard.clone());
+        }
+        if let Some(sensors) = &self.sensors {
+            flag("--sensors", sensors.clone());
+        }
+        if let Some(sets) = &self.compare_sensors {
+            flag("--compare-sensors", sets.clone());
         }
         if let Some(d) = &self.dataset {
             for (on, name) in [

@@ -19,7 +19,9 @@ use sightline_filters::FilterSpec;
 use crate::cli::{DatasetArgs, PlantArgs, configure};
 use crate::dataset::read::{DatasetReader, RecordSource, Schema};
 use crate::dataset::time::Clock;
+use crate::dataset::{Layout, Record};
 use crate::error::{Error, Result};
+use crate::observability_check::{self, CHECK_ROWS, Keeping};
 use crate::output::{Catching, OutputDir};
 use crate::plant::AnyPlant;
 use crate::ranking::{self, StepRecord};
@@ -87,6 +89,9 @@ pub struct Comparison {
     pub smoothed: Option<SmoothedRun>,
     /// The data's clock, for the plots' time axis.
     pub clock: Clock,
+    /// The report's "Observability" section, when a state is not well observable along the
+    /// data (see [`crate::observability_check`]).
+    pub observability: Option<String>,
 }
 
 /// What a command knows about a comparison beyond the run itself: recorded in `summary.json`
@@ -170,7 +175,11 @@ impl Comparison {
         };
         let mut notes = self.notes.clone();
         notes.push(crate::plant::parameters_text(plant));
-        report::render_html(title, &self.summary, &plots, &notes)
+        let html = report::render_html(title, &self.summary, &plots, &notes)?;
+        Ok(match &self.observability {
+            Some(section) => crate::observability_report::insert_section(&html, section),
+            None => html,
+        })
     }
 }
 
@@ -311,32 +320,68 @@ pub fn compare(
         ..RunConfig::default()
     };
     let states: Vec<String> = plant.states().into_iter().map(|v| v.name).collect();
+    // The first rows pass through a copy kept for the observability check.
+    let kept = if plant.states().len() > observability_check::MAX_STATES {
+        0
+    } else {
+        CHECK_ROWS
+    };
+    let mut keeping = Keeping::new(source, kept);
     let outcome = match estimates {
         Some(out) => {
             let labels = specs.iter().map(|s| s.label.clone()).collect();
             let mut writer = EstimatesWriter::new(out, &states, labels)?;
-            let outcome = runner::run(plant, filters, source, &config, &mut writer)?;
+            let outcome = runner::run(plant, filters, &mut keeping, &config, &mut writer)?;
             writer.finish()?;
             outcome
         }
         None => {
             let mut observer = NoObserver;
             let observer: &mut dyn Observer = &mut observer;
-            runner::run(plant, filters, source, &config, observer)?
+            runner::run(plant, filters, &mut keeping, &config, observer)?
         }
     };
+    let rows = keeping.into_rows();
     let mut notes: Vec<String> = outcome.truth_problem.iter().cloned().collect();
     let smoothed = options
         .smooth
         .then(|| smoothing_notes(&outcome, &mut notes));
-    let summary = summarise(plant, &outcome);
+    let mut summary = summarise(plant, &outcome);
+    let observability = observability_section(plant, source.layout(), rows, &outcome, &mut summary);
     Ok(Comparison {
         summary,
         series: outcome.series,
         notes,
         smoothed,
         clock: source.clock(),
+        observability,
     })
+}
+
+/// The observability check along the run's first rows: the report section when a state is
+/// not well observable, with the verdict's warnings appended to `summary`. A check that cannot
+/// be made (a singular R, an overflowing sensitivity) leaves the comparison as it is: it is an
+/// addition to the report, not a condition of it.
+fn observability_section(
+    plant: &dyn AnyPlant,
+    layout: &Layout,
+    rows: Vec<Record>,
+    outcome: &RunOutcome,
+    summary: &mut Summary,
+) -> Option<String> {
+    if plant.states().len() > observability_check::MAX_STATES {
+        return None;
+    }
+    let check = observability_check::check(plant, layout, rows).ok()?;
+    let warnings = match &outcome.series {
+        Some(series) => observability_check::warnings(&check, series, summary),
+        None => Vec::new(),
+    };
+    for w in &warnings {
+        summary.verdict.push('\n');
+        summary.verdict.push_str(w);
+    }
+    crate::observability_report::section(&check.result, &warnings)
 }
 
 /// Notes on what `--smooth` gave each filter, and the smoothed tracks.

@@ -9,6 +9,7 @@ pub mod demo;
 pub mod merge;
 pub mod models;
 pub mod montecarlo;
+pub mod observe;
 pub mod simulate;
 pub mod tune;
 
@@ -95,6 +96,26 @@ pub fn dispatch(command: Command, plants: &[Box<dyn AnyPlant>]) -> Result<()> {
                 params,
                 seed,
                 diffuse,
+                output,
+            },
+        ),
+        Command::Observe {
+            plant,
+            data,
+            dataset,
+            sensors,
+            compare_sensors,
+            steps,
+            output,
+        } => observe::run(
+            plants,
+            &observe::ObserveArgs {
+                plant,
+                data,
+                dataset,
+                sensors,
+                compare_sensors,
+                steps,
                 output,
             },
         ),

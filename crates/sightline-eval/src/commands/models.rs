@@ -124,6 +124,11 @@ pub fn listing(plants: &[Box<dyn AnyPlant>]) -> String {
     out.push_str("filters (-f KIND[:key=value,...]):\n");
     out.push_str(&kinds.join("\n"));
     out.push('\n');
+    out.push_str(
+        "\nWhich states a model's measurements can see, and how well: sightline observe MODEL \
+         [DATA.csv] [--sensors NAME,...] [--compare-sensors 'A|B,C'] -o DIR (sensor names are \
+         the measurement names above).\n",
+    );
     out
 }
 

@@ -13,6 +13,7 @@ use crate::campaign::{self, CampaignSpec, Shard, Totals};
 use crate::checkpoint::Checkpoint;
 use crate::cli::{PlantArgs, configure};
 use crate::error::{Error, Result};
+use crate::observability_check;
 use crate::output::{self, OutputDir};
 use crate::plant::AnyPlant;
 use crate::report::{self, Area, Line, LinePlot, Plot, colour};
@@ -152,6 +153,15 @@ fn write_json(dir: &OutputDir, name: &str, text: &str) -> Result<()> {
 /// Writes `summary.json`, `partial.json` and `report.html` of `totals` into `output`
 /// (atomically) and returns the summary and the directory.
 pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBuf)> {
+    write_campaign_with(totals, output, None)
+}
+
+/// [`write_campaign`] with an extra report `section` (the campaign's observability check).
+pub fn write_campaign_with(
+    totals: &Totals,
+    output: &Path,
+    section: Option<&str>,
+) -> Result<(Summary, PathBuf)> {
     let summary = campaign::summarise(totals);
     let dir = OutputDir::new(output)?;
     write_json(&dir, "summary.json", &summary.to_json())?;
@@ -188,7 +198,11 @@ pub fn write_campaign(totals: &Totals, output: &Path) -> Result<(Summary, PathBu
         totals.runs_covered(),
         totals.campaign.steps
     );
-    let html = report::render_html(&title, &summary, &campaign_plots(totals, &summary), &notes)?;
+    let mut html =
+        report::render_html(&title, &summary, &campaign_plots(totals, &summary), &notes)?;
+    if let Some(section) = section {
+        html = crate::observability_report::insert_section(&html, section);
+    }
     dir.write("report.html", |w| {
         w.write_all(html.as_bytes()).map_err(|source| Error::Write {
             path: PathBuf::from("report.html"),
@@ -301,7 +315,8 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CampaignArgs) -> Result<()> {
             &args.output,
         ));
     }
-    let (summary, dir) = match write_campaign(&totals, &args.output) {
+    let section = observability_check::campaign_section(plant.as_ref(), &spec);
+    let (summary, dir) = match write_campaign_with(&totals, &args.output, section.as_deref()) {
         Ok(done) => done,
         // E.g. a file added to the old output meanwhile: keep the finished runs.
         Err(e) => {
