@@ -90,7 +90,7 @@ use std::fmt;
 use std::ops::{Add, AddAssign, Div, DivAssign, Mul, MulAssign, Neg, Sub, SubAssign};
 
 use num_traits::{One, Zero};
-use wide::{CmpEq, CmpGe, CmpGt, CmpLe, CmpLt, f64x4};
+use wide::f64x4;
 
 use crate::real::Real;
 
@@ -338,7 +338,7 @@ impl Real for Lanes {
     }
     #[inline]
     fn powf(self, p: f64) -> Self {
-        Lanes(self.0.powf(p))
+        Lanes(self.0.powf_simd(f64x4::splat(p)))
     }
     #[inline]
     fn exp(self) -> Self {

@@ -328,6 +328,7 @@ where
             ancestors: None,
             key: purpose::PREDICT,
             step: self.tag.step as u64,
+            lanes: false,
         };
         let lost = cloud::propagate(
             &self.model,

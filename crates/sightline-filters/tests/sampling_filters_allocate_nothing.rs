@@ -113,7 +113,10 @@ fn allocations(spec: &str, pool: &rayon::ThreadPool, steps: usize) -> usize {
     })
 }
 
-const SPECS: [&str; 7] = [
+const SPECS: [&str; 9] = [
+    // The lane path (four particles per plant call), with a short last group of one particle.
+    "pf:particles=5001,lanes=on",
+    "pf:particles=5001,ess=1,lanes=on,noise=each,roughening=0.2",
     "pf:particles=5000,ess=1,roughening=0.2",
     "pf:particles=5000,temper=0.9",
     "pf:particles=5000,ess=1,resample=multinomial,regularise=on,noise=each",
