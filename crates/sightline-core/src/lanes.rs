@@ -15,19 +15,23 @@
 //!
 //! Arithmetic, `sqrt`, `abs`, `recip`, comparisons and selections are IEEE 754 operations lane
 //! by lane: bit for bit what `f64` gives. The elementary functions are `wide`'s vectorised
-//! polynomial approximations (ports of Agner Fog's vector class library); `exp2`, `asinh`,
-//! `acosh`, `atanh` (whose vectorised forms are less accurate, or absent) call `f64`'s libm functions lane by lane. Their largest error against the `f64`
-//! (libm) function, in units in the last place, measured over 2²⁰ points of each range below by
-//! `tests/lane_accuracy.rs` (which fails if a bound is exceeded) and checked against
-//! correctly-rounded mpmath values at sample points
-//! (`tests/reference/lane_functions.py`):
+//! polynomial approximations (ports of Agner Fog's vector class library), except `sin`, `cos`,
+//! `sin_cos` and `tan`, written here on the same polynomials so that they vectorise on every
+//! x86-64 target (see `sin_cos` in the source: wide's version converts to integers, which SSE2
+//! lacks, and measured barely faster than libm there); `exp2`, `asinh`, `acosh`, `atanh` (whose
+//! vectorised forms are less accurate, or absent) call `f64`'s libm functions lane by lane.
+//! Their largest error against the `f64` (libm) function, in units in the last place, measured
+//! over 2²⁰ points of each range below by `tests/lane_accuracy.rs` (which fails if a bound is
+//! exceeded; the bounds are the largest errors seen over three such samples) and checked
+//! against correctly rounded mpmath values at sample points (`tests/reference/lane_functions.py`):
 //!
 //! | function | range | max ulps vs libm |
 //! |---|---|---|
-//! | `sin`, `cos`, `sin_cos` | \|x\| ≤ 10⁴ | 2 |
-//! | `tan` | \|x\| ≤ 10⁴ | 3 |
+//! | `sin`, `cos`, `sin_cos` | \|x\| ≤ 10⁸ | 2 |
+//! | `tan` | \|x\| ≤ 10⁴ | 4 |
+//! | `sin`, `cos`, `sin_cos`, `tan` | \|x\| > 10⁸ | 0 (libm lane by lane) |
 //! | `exp` | \|x\| ≤ 700 | 1 |
-//! | `exp_m1` | \|x\| ≤ 700 | 4 |
+//! | `exp_m1` | \|x\| ≤ 700 | 5 |
 //! | `ln` | 10⁻³⁰⁰ ≤ x ≤ 10³⁰⁰ | 1 |
 //! | `log2`, `log10`, `log` | 10⁻³⁰⁰ ≤ x ≤ 10³⁰⁰ | 2 |
 //! | `ln_1p` | −0.999 ≤ x ≤ 10³⁰⁰ | 2 |
@@ -48,8 +52,8 @@
 //! default x86-64 build; an FMA build (`target-cpu=native`) rounds the polynomials differently
 //! and may move them by an ulp.
 //!
-//! Beyond \|x\| ≈ 10⁸ the trigonometric argument reduction loses accuracy (`wide` reduces by
-//! π/2 in three parts); plants see angles far below that.
+//! Trigonometric arguments beyond 10⁸ in magnitude go to libm lane by lane (the three-part
+//! reduction by π/2 is exact only below about 4·10⁸).
 //!
 //! # Keeping a plant lane-friendly
 //!
@@ -90,7 +94,7 @@ use std::fmt;
 use std::ops::{Add, AddAssign, Div, DivAssign, Mul, MulAssign, Neg, Sub, SubAssign};
 
 use num_traits::{One, Zero};
-use wide::f64x4;
+use wide::{f64x4, u64x4};
 
 use crate::real::Real;
 
@@ -376,20 +380,21 @@ impl Real for Lanes {
     }
     #[inline]
     fn sin(self) -> Self {
-        Lanes(self.0.sin())
+        Lanes(sin_cos(self.0).0)
     }
     #[inline]
     fn cos(self) -> Self {
-        Lanes(self.0.cos())
+        Lanes(sin_cos(self.0).1)
     }
     #[inline]
     fn sin_cos(self) -> (Self, Self) {
-        let (s, c) = self.0.sin_cos();
+        let (s, c) = sin_cos(self.0);
         (Lanes(s), Lanes(c))
     }
     #[inline]
     fn tan(self) -> Self {
-        Lanes(self.0.tan())
+        let (s, c) = sin_cos(self.0);
+        Lanes(s / c)
     }
     #[inline]
     fn asin(self) -> Self {
@@ -431,6 +436,83 @@ impl Real for Lanes {
     fn atanh(self) -> Self {
         self.map(f64::atanh)
     }
+}
+
+/// Arguments up to this magnitude are reduced in lanes; larger ones (and ±∞) by libm.
+/// `y·DP1` and `y·DP2` below are exact while the quadrant count y < 2²⁸ (their constants have
+/// 24 significant bits), i.e. |x| < 2²⁸·π/2 ≈ 4.2·10⁸; the limit leaves a margin.
+const TRIG_LANE_LIMIT: f64 = 1e8;
+
+/// `a + b·x` evaluated by Horner's rule in x (coefficients lowest first), unfused so that every
+/// build target rounds the same way.
+#[inline(always)]
+fn horner(x: f64x4, coefficients: &[f64]) -> f64x4 {
+    let mut acc = f64x4::splat(coefficients[coefficients.len() - 1]);
+    for &c in coefficients[..coefficients.len() - 1].iter().rev() {
+        acc = acc * x + f64x4::splat(c);
+    }
+    acc
+}
+
+/// sin x and cos x of every lane.
+///
+/// Cody–Waite reduction by π/2 in three parts (Cody & Waite, *Software Manual for the
+/// Elementary Functions*, 1980, ch. 8) and the minimax polynomials of Moshier's Cephes library
+/// (`sin.c`; Moshier, *Methods and Programs for Mathematical Functions*, 1989) on
+/// [−π/4, π/4] — the scheme `wide`'s own `sin_cos` uses. Written here with operations every
+/// x86-64 target has in SIMD (add, multiply, bitwise and 64-bit integer add/shift): the
+/// quadrant is rounded with the 1.5·2⁵² trick instead of a float-to-integer conversion, which
+/// SSE2 lacks and `wide` emulates lane by lane, at a cost that ate the whole gain.
+#[inline]
+fn sin_cos(x: f64x4) -> (f64x4, f64x4) {
+    const SIN: [f64; 6] = [
+        -1.66666666666666307295E-1,
+        8.33333333332211858878E-3,
+        -1.98412698295895385996E-4,
+        2.75573136213857245213E-6,
+        -2.50507477628578072866E-8,
+        1.58962301576546568060E-10,
+    ];
+    const COS: [f64; 6] = [
+        4.16666666666665929218E-2,
+        -1.38888888888730564116E-3,
+        2.48015872888517045348E-5,
+        -2.75573141792967388112E-7,
+        2.08757008419747316778E-9,
+        -1.13585365213876817300E-11,
+    ];
+    // π/2 = DP1 + DP2 + DP3 to about 3·53 bits (Cephes).
+    const DP1: f64 = 7.853981554508209228515625E-1 * 2.0;
+    const DP2: f64 = 7.94662735614792836714E-9 * 2.0;
+    const DP3: f64 = 3.06161699786838294307E-17 * 2.0;
+    // Adding 1.5·2⁵² rounds a value below 2⁵¹ to an integer (to nearest, ties to even) and
+    // leaves that integer in the low bits of the sum.
+    const ROUNDER: f64 = 6755399441055744.0;
+    const SIGN: u64 = 1 << 63;
+    let xa = x.abs();
+    if !xa.simd_le(f64x4::splat(TRIG_LANE_LIMIT)).all() {
+        // Huge, infinite or NaN lanes: libm, lane by lane.
+        let a = x.to_array();
+        return (f64x4::new(a.map(f64::sin)), f64x4::new(a.map(f64::cos)));
+    }
+    let shifted = xa * f64x4::splat(std::f64::consts::FRAC_2_PI) + f64x4::splat(ROUNDER);
+    let quadrant = shifted.to_bits();
+    let y = shifted - f64x4::splat(ROUNDER);
+    let r = xa - y * f64x4::splat(DP1) - y * f64x4::splat(DP2) - y * f64x4::splat(DP3);
+    let r2 = r * r;
+    let s = r + r * r2 * horner(r2, &SIN);
+    let c = r2 * r2 * horner(r2, &COS) + (f64x4::ONE - r2 * f64x4::splat(0.5));
+    // Odd quadrants swap the two; all-ones where the quadrant is odd.
+    let one = u64x4::splat(1);
+    let odd = f64x4::from_bits(u64x4::ZERO - (quadrant & one));
+    let (sin, cos) = (odd.select(c, s), odd.select(s, c));
+    // sin is negative in quadrants 2 and 3 (bit 1), and odd in x; cos in quadrants 1 and 2.
+    let sin_sign = ((quadrant << 62) ^ x.to_bits()) & u64x4::splat(SIGN);
+    let cos_sign = ((quadrant + one) & u64x4::splat(2)) << 62;
+    (
+        f64x4::from_bits(sin.to_bits() ^ sin_sign),
+        f64x4::from_bits(cos.to_bits() ^ cos_sign),
+    )
 }
 
 #[cfg(test)]
