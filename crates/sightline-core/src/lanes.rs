@@ -463,6 +463,8 @@ fn horner(x: f64x4, coefficients: &[f64]) -> f64x4 {
 /// x86-64 target has in SIMD (add, multiply, bitwise and 64-bit integer add/shift): the
 /// quadrant is rounded with the 1.5·2⁵² trick instead of a float-to-integer conversion, which
 /// SSE2 lacks and `wide` emulates lane by lane, at a cost that ate the whole gain.
+// The constants are quoted as published (Cephes), digits beyond f64 included.
+#[allow(clippy::excessive_precision)]
 #[inline]
 fn sin_cos(x: f64x4) -> (f64x4, f64x4) {
     const SIN: [f64; 6] = [
