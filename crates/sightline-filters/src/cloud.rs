@@ -179,6 +179,48 @@ where
     std::array::from_fn(|l| on_f64(&vector(nd, states[l])))
 }
 
+/// The `lanes` option shared by the sampling filters.
+pub(crate) const LANES_OPTION: crate::spec::OptionInfo = crate::spec::OptionInfo {
+    key: "lanes",
+    default: "off",
+    about: "on: evaluate the plant over 4 samples per call in SIMD lanes",
+};
+
+/// h(xₖ) of every sample xₖ of `block` (`n` values each), in order, handed to `emit(k, h(xₖ))`:
+/// four samples per call over lanes when `lanes` ([`evaluate_group`]), else one by one.
+pub(crate) fn measure_each<M: Model>(
+    model: &M,
+    block: &[f64],
+    lanes: bool,
+    u: &[f64],
+    t: f64,
+    mut emit: impl FnMut(usize, OVector<f64, M::Meas>),
+) where
+    DefaultAllocator: Alloc<M::State, M::Meas>,
+{
+    let nd = model.state_dim();
+    let n = nd.value();
+    if !lanes {
+        for (k, x) in block.chunks_exact(n).enumerate() {
+            emit(k, model.measure(&vector(nd, x), u, t));
+        }
+        return;
+    }
+    let mut friendly = true;
+    for (g, group) in block.chunks(n * LANES).enumerate() {
+        let values = evaluate_group(
+            nd,
+            group_states(group, n),
+            &mut friendly,
+            |x| model.measure(x, u, t),
+            |x| model.measure(x, u, t),
+        );
+        for (l, z) in values.into_iter().take(group.len() / n).enumerate() {
+            emit(g * LANES + l, z);
+        }
+    }
+}
+
 /// Adds Gaussian noise L ε to every sample (`centre = None`: roughening, regularisation) or
 /// replaces every sample by `centre + L ε` (draws from N(centre, L Lᵀ)), `factor` = L
 /// column-major, then projects it onto the model's feasible set. Streams are keyed

@@ -30,13 +30,13 @@
 //! `variant=auxiliary`, `redraw`, `noise` ([`NoiseAt`]) and `lanes` (below).
 //!
 //! **Lanes** (`lanes=on`; off by default). The prediction's transitions and the weighting's
-//! measurements are evaluated over [`LANES`] particles per call: the plant's own generic code
-//! runs on [`sightline_core::Lanes`], a SIMD vector implementing the scalar trait, with
-//! vectorised elementary functions. A plant that branches on a value ([`sightline_core::Real::value`])
-//! is detected and evaluated particle by particle instead, with the scalar path's numbers. The
+//! measurements are evaluated over four particles per call: the plant's own generic code runs
+//! on [`sightline_core::Lanes`], a SIMD vector implementing the scalar trait, with vectorised
+//! elementary functions. A plant that branches on a value ([`sightline_core::Real::value`]) is
+//! detected and evaluated particle by particle instead, with the scalar path's numbers. The
 //! random draws are those of the scalar path, so the estimates differ from `lanes=off` only by
 //! the lane functions' documented accuracy (a few ulps per call: [`sightline_core::lanes`]),
-//! amplified as any rounding difference is by resampling decisions.
+//! carried along the run. The auxiliary variant's look-ahead points stay on the scalar path.
 //!
 //! **Tempered updates** (`temper=F`, 0 < F < 1; off by default). A measurement much sharper
 //! than the predicted cloud leaves almost all the weight on a few particles (e.g. the first
@@ -87,7 +87,6 @@
 use nalgebra::{DefaultAllocator, Dim, Dyn, OMatrix, OVector};
 use rand::RngExt;
 use rayon::prelude::*;
-use sightline_core::lanes::LANES;
 use sightline_core::linalg::{cholesky, ensure_finite};
 use sightline_core::rng::stream;
 use sightline_core::{Alloc, Gaussian, Model, NumericError};
@@ -162,11 +161,7 @@ pub const INFO: KindInfo = KindInfo {
             default: "100",
             about: "backward trajectories M of the particle smoother (FFBSi), when smoothing",
         },
-        OptionInfo {
-            key: "lanes",
-            default: "off",
-            about: "on: evaluate the plant over 4 particles per call in SIMD lanes",
-        },
+        cloud::LANES_OPTION,
     ],
     linear_only: false,
 };
@@ -216,7 +211,7 @@ pub struct PfConfig {
     pub noise: NoiseAt,
     /// Backward trajectories drawn by the particle smoother (at least 2).
     pub smoother_paths: usize,
-    /// Evaluate the plant's transition and measurement over [`LANES`] particles per call
+    /// Evaluate the plant's transition and measurement over four particles per call
     /// (`lanes=on`; see [`sightline_core::lanes`]).
     pub lanes: bool,
 }
@@ -641,26 +636,7 @@ where
                     lw[k] = w;
                     max = max.max(w);
                 };
-                if lanes {
-                    let mut friendly = true;
-                    for (g, group) in block.chunks(n * LANES).enumerate() {
-                        let zs = cloud::evaluate_group(
-                            nd,
-                            cloud::group_states(group, n),
-                            &mut friendly,
-                            |x| model.measure(x, u, t),
-                            |x| model.measure(x, u, t),
-                        );
-                        let count = group.len() / n;
-                        for (l, z) in zs.into_iter().take(count).enumerate() {
-                            score(g * LANES + l, z);
-                        }
-                    }
-                } else {
-                    for (k, x) in block.chunks_exact(n).enumerate() {
-                        score(k, model.measure(&vector(nd, x), u, t));
-                    }
-                }
+                cloud::measure_each(model, block, lanes, u, t, &mut score);
                 slot[0] = max;
                 slot[1] = valid_sum;
             });
@@ -1463,7 +1439,7 @@ mod tests {
     #[test]
     fn spec_options_are_read_and_checked() {
         let spec = FilterSpec::parse(
-            "pf:particles=5000,resample=residual,ess=0.3,roughening=0.2,redraw=on,variant=auxiliary,noise=each",
+            "pf:particles=5000,resample=residual,ess=0.3,roughening=0.2,redraw=on,variant=auxiliary,noise=each,lanes=on",
         )
         .unwrap();
         let c = config_from_spec(&spec).unwrap();
@@ -1474,6 +1450,7 @@ mod tests {
         assert!(c.redraw);
         assert_eq!(c.variant, Variant::Auxiliary);
         assert_eq!(c.noise, NoiseAt::Each);
+        assert!(c.lanes);
         assert_eq!(
             config_from_spec(&FilterSpec::parse("pf").unwrap()).unwrap(),
             PfConfig::default()
