@@ -71,7 +71,7 @@ impl ModelVisitor for Gaps {
                 model.project(&mut x);
                 x
             });
-            let lanes = pack(n.clone(), &states);
+            let lanes = pack(n, &states);
             let t = 0.37;
             if let Some(worst) = transition {
                 transition = attempt(|| model.transition(&lanes, &u, t, dt)).map(|f| {
