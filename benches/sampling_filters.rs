@@ -9,6 +9,8 @@
 //! - `pf_particles/<threads>t/<N>`: one predict + update step of the bootstrap particle filter
 //!   (`pf:particles=N`, systematic resampling at ESS < N/2) on `pendulum`, N = 10³ … 10⁶, on a
 //!   rayon pool of 1 and of 2 threads (`ThreadPoolBuilder` + `install`).
+//! - `pf_lanes/<threads>t/<N>`: the same with `lanes=on` (the plant's transition and measurement
+//!   evaluated over four particles per call, `sightline_core::lanes`).
 //! - `pf_bare/<N>`: the arithmetic no particle filter can avoid, as a tight sequential loop over
 //!   a cloud of N (`support/bare_arithmetic.rs`): per particle, draw the process noise (two
 //!   standard normals from the same generator), apply one transition (the model's RK4 step), add
@@ -51,12 +53,13 @@ fn pendulum_data(rows: usize) -> Vec<Record> {
         .records
 }
 
-/// A PF on the pendulum, with the first row's update done.
-fn fresh_pf(particles: usize, first: &Record) -> ParticleFilter<Pendulum> {
+/// A PF on the pendulum (`lanes` on or off), with the first row's update done.
+fn fresh_pf(particles: usize, lanes: bool, first: &Record) -> ParticleFilter<Pendulum> {
     let model = Pendulum::default();
     let prior = model.prior();
     let config = PfConfig {
         particles,
+        lanes,
         ..PfConfig::default()
     };
     let mut pf = ParticleFilter::new(model, prior, config, "pf", 3).expect("pf");
@@ -67,17 +70,18 @@ fn fresh_pf(particles: usize, first: &Record) -> ParticleFilter<Pendulum> {
 
 fn pf_particles(c: &mut Criterion) {
     let records = pendulum_data(2_000);
-    for threads in [1, 2] {
+    for (threads, lanes) in [(1, false), (2, false), (1, true), (2, true)] {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build()
             .expect("thread pool");
-        let mut group = c.benchmark_group(format!("pf_particles/{threads}t"));
+        let name = if lanes { "pf_lanes" } else { "pf_particles" };
+        let mut group = c.benchmark_group(format!("{name}/{threads}t"));
         configure(&mut group);
         for &count in COUNTS {
             // Filters are built and stepped inside the pool, so rayon splits their passes over
             // exactly `threads` workers.
-            let mut pf = pool.install(|| fresh_pf(count, &records[0]));
+            let mut pf = pool.install(|| fresh_pf(count, lanes, &records[0]));
             let mut k = 1;
             group.throughput(criterion::Throughput::Elements(count as u64));
             group.bench_function(count.to_string(), |b| {
@@ -88,7 +92,7 @@ fn pf_particles(c: &mut Criterion) {
                         for _ in 0..iters {
                             if k == records.len() {
                                 total += start.elapsed();
-                                pf = fresh_pf(count, &records[0]);
+                                pf = fresh_pf(count, lanes, &records[0]);
                                 k = 1;
                                 start = Instant::now();
                             }

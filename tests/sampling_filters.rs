@@ -6,7 +6,8 @@
 //!   match the KF's exact one.
 //! - On `ungm` the posterior is bimodal: the published comparisons (Gordon, Salmond & Smith 1993;
 //!   Arulampalam et al., IEEE TSP 50(2), 2002) show the bootstrap filter far ahead of the EKF.
-//! - Output is bit-identical for 1, 2 and 16 threads and reproducible from the seed.
+//! - Output is bit-identical for 1, 2 and 16 threads and reproducible from the seed (also on
+//!   the lane path, `lanes=on`).
 
 use sightline::eval::dataset::Dataset;
 use sightline::eval::simulate::SimOptions;
@@ -263,6 +264,14 @@ fn output_is_identical_for_any_thread_count_and_reproducible_from_the_seed() {
         ("ungm", "pf:particles=5000,resample=stratified,noise=each"),
         ("cv", "enkf:members=5000,inflation=1.02"),
         ("ungm", "enkf:members=3000"),
+        // The lane path groups four particles within a block; 5,001: a short last group.
+        ("pendulum", "pf:particles=5001,lanes=on"),
+        (
+            "ungm",
+            "pf:particles=5001,lanes=on,noise=each,roughening=0.2",
+        ),
+        ("tracking", "pf:particles=5001,lanes=on"),
+        ("cstr", "enkf:members=3001,lanes=on"),
     ];
     let pools: Vec<rayon::ThreadPool> = [1, 2, 16]
         .iter()

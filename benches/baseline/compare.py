@@ -2,6 +2,7 @@
 
     pip install numpy scipy          # not part of CI
     python3 benches/baseline/compare.py [--steps 500] [--particles 100000] [--out DIR]
+                                        [--pf-options lanes=on]
 
 1. builds the `sightline` binary and the `time_filter` example (release);
 2. simulates one `pendulum` and one `ungm` dataset with `sightline simulate`;
@@ -100,6 +101,8 @@ def main():
     ap.add_argument("--ukf-repeat", type=int, default=20)
     ap.add_argument("--pf-repeat", type=int, default=3)
     ap.add_argument("--out", type=Path, default=None, help="where baseline.json goes")
+    ap.add_argument("--pf-options", default="",
+                    help="extra options of Sightline's pf, e.g. lanes=on (comma-separated)")
     a = ap.parse_args()
 
     run(["cargo", "build", "--release", "--quiet", "--bin", "sightline",
@@ -112,6 +115,9 @@ def main():
     steps = len(t)
     plant = Pendulum()
     pf_spec = f"pf:particles={a.particles}"
+    # With --pf-options the PF also runs as `pf_spec,OPTIONS` on both models, timed against
+    # the same numpy runs.
+    alt_spec = f"{pf_spec},{a.pf_options}" if a.pf_options else None
 
     rs_ukf, (rs_ukf_m, rs_ukf_sd) = sightline(data, "ukf", a.ukf_repeat, 1, work / "ukf.csv")
     rs_pf1, (rs_pf_m, rs_pf_sd) = sightline(data, pf_spec, a.pf_repeat, 1, work / "pf1.csv")
@@ -148,6 +154,15 @@ def main():
     np_g /= g_steps
     g_rms, g_max, _ = pf_agreement(rs_g_m, np_g_m, rs_g_sd, a.particles)
     threads_same = threads_same and bool(np.array_equal(rs_g_m, rs_g2_m))
+    alt = {}
+    if alt_spec:
+        for key, dataset, model, n in [("pf", data, "pendulum", 2), ("ungm_pf", growth, "ungm", 1)]:
+            for threads in (1, 2):
+                seconds, (means, _) = sightline(dataset, alt_spec, a.pf_repeat, threads,
+                                                work / f"alt_{key}_{threads}.csv", model, n)
+                alt[f"{key}_{threads}"] = (seconds, means)
+        threads_same = threads_same and all(
+            np.array_equal(alt[f"{k}_1"][1], alt[f"{k}_2"][1]) for k in ("pf", "ungm_pf"))
     checks = {
         "ukf_max_mean_difference_in_sd": ukf_dev,
         "ukf_max_relative_sd_difference": ukf_sd_dev,
@@ -158,6 +173,10 @@ def main():
         "ungm_pf_max_mean_difference_in_sd": g_max,
         "pf_one_and_two_threads_identical": threads_same,
     }
+    if alt_spec:
+        # Same seed, same draws: the alternative PF (e.g. lanes=on) differs by rounding only.
+        checks["alternative_pf_max_mean_difference_in_sd"] = float(
+            np.max(np.abs(alt["pf_1"][1] - rs_pf_m) / rs_pf_sd))
     ok = (ukf_dev < 1e-6 and ukf_sd_dev < 1e-6 and pf_rms < pf_bound and g_rms < pf_bound
           and threads_same)
 
@@ -168,6 +187,13 @@ def main():
         (f"ungm pf N={a.particles}, 1 thread", rs_g1, np_g, 6.0),
         (f"ungm pf N={a.particles}, 2 threads", rs_g2, np_g, 6.0),
     ]
+    if alt_spec:
+        rows += [
+            (f"pf {a.pf_options}, 1 thread", alt["pf_1"][0], np_pf, 6.0),
+            (f"pf {a.pf_options}, 2 threads", alt["pf_2"][0], np_pf, 6.0),
+            (f"ungm pf {a.pf_options}, 1 thread", alt["ungm_pf_1"][0], np_g, 6.0),
+            (f"ungm pf {a.pf_options}, 2 threads", alt["ungm_pf_2"][0], np_g, 6.0),
+        ]
     load = os.getloadavg()
     print(f"pendulum, {steps} rows, numpy {np.__version__}, Python {platform.python_version()}, "
           f"load average {load[0]:.2f} {load[1]:.2f} {load[2]:.2f}")
@@ -209,6 +235,15 @@ def main():
         "checks": checks,
         "agree": ok,
     }
+    if alt_spec:
+        result["alternative_pf_spec"] = alt_spec
+        result["alternative_seconds_per_step"] = {
+            f"sightline_{k.replace('_1', '_1_thread').replace('_2', '_2_threads')}": v[0]
+            for k, v in alt.items()
+        }
+        result["alternative_ratios"] = {
+            k: (np_pf if k.startswith("pf") else np_g) / v[0] for k, v in alt.items()
+        }
     out = a.out or work
     out.mkdir(parents=True, exist_ok=True)
     (out / "baseline.json").write_text(json.dumps(result, indent=2) + "\n")

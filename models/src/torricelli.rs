@@ -19,17 +19,13 @@
 
 use sightline_core::prelude::*;
 
-/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are: the same
-/// function as `h.smooth_max(0.0, eps)` ([`Real::smooth_max`]), written for the zero floor
-/// directly, which saves two operations per call on the hot path of the tank plants.
+/// The smooth positive part ĥ(h) of a level (module docs), in cm if `h` and `eps` are:
+/// `h.smooth_max(0.0, eps)` ([`Real::smooth_max`]), whose two forms are exactly the two forms
+/// of ĥ above (the floor 0 adds and subtracts exactly). Written through `smooth_max` rather
+/// than an `if` on the value so that the tank plants stay lane-friendly (`sightline_core::lanes`):
+/// `f64` and dual numbers still evaluate only the branch they take.
 pub fn smooth_level<S: Real>(h: S, eps: f64) -> S {
-    let s = (h * h + eps * eps).sqrt();
-    if h.value() >= 0.0 {
-        (h + s) * 0.5
-    } else {
-        // Same function, written without the cancellation of h + s for h < 0.
-        (s - h).recip() * (eps * eps * 0.5)
-    }
+    h.smooth_max(0.0, eps)
 }
 
 /// Outflow a·√(2g·ĥ(h)) of an outlet of area `a` at level `h` (cm³/s for cm, cm², cm/s²).

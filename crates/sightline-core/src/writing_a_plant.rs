@@ -176,6 +176,30 @@
 //! assert_eq!(relu(-1.0_f64), 0.0);
 //! ```
 //!
+//! ## Many particles per call
+//!
+//! The particle filter with `lanes=on` runs the same `transition`, `derivative` and `measure`
+//! with `S` = [`crate::Lanes`], four particles in one SIMD vector. Nothing is written twice,
+//! and a branch on [`Real::value`] still works — the filter notices the value was read and
+//! evaluates that plant one particle at a time — but only branch-free code gets the speed-up.
+//! So prefer `select`, `max`, `min`, `clamp`, `smooth_max` and `abs` to an `if` on a value,
+//! and keep both sides of a `select` finite (both are evaluated); branches on parameters,
+//! inputs and time are free. [`crate::lanes`] lists the accuracy of each function on lanes.
+//!
+//! ```
+//! use sightline_core::lanes::{Lanes, attempt};
+//! use sightline_core::prelude::*;
+//! fn relu<S: Real>(x: S) -> S {
+//!     S::select(x.gt(0.0), x, S::zero())
+//! }
+//! fn relu_by_branch<S: Real>(x: S) -> S {
+//!     if x.value() > 0.0 { x } else { S::zero() }
+//! }
+//! let x = Lanes::new([-1.0, 2.0, -3.0, 4.0]);
+//! assert_eq!(attempt(|| relu(x)).unwrap().to_array(), [0.0, 2.0, 0.0, 4.0]);
+//! assert!(attempt(|| relu_by_branch(x)).is_none()); // evaluated per particle instead
+//! ```
+//!
 //! ## Flow laws at an empty tank
 //!
 //! √h has an infinite slope at h = 0, so `h.max(0.0).sqrt()` gives the extended filters an

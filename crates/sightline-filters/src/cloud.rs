@@ -16,6 +16,7 @@
 use nalgebra::{Cholesky, DefaultAllocator, Dim, Dyn, OMatrix, OVector, U1};
 use rand_distr::StandardNormal;
 use rayon::prelude::*;
+use sightline_core::lanes::{LANES, Lanes, attempt};
 use sightline_core::rng::{Stream, stream};
 use sightline_core::{Alloc, Model, NumericError};
 
@@ -139,6 +140,87 @@ where
     OMatrix::<f64, D, D>::from_column_slice_generic(d, d, values)
 }
 
+/// Up to [`LANES`] consecutive samples of a block (`n` values each) as a full group: a short
+/// group at the end of a cloud repeats its last sample, so every sample is evaluated the same
+/// way whatever its position.
+pub(crate) fn group_states(group: &[f64], n: usize) -> [&[f64]; LANES] {
+    let count = group.len() / n;
+    std::array::from_fn(|l| &group[l.min(count - 1) * n..][..n])
+}
+
+/// A plant function of [`LANES`] samples `states`: evaluated once over [`Lanes`] (`on_lanes`)
+/// while `friendly` holds, else sample by sample over `f64` (`on_f64`, the same plant code).
+/// If the lane evaluation looks at a value ([`sightline_core::lanes::attempt`]: the plant
+/// branches on it) the group is re-evaluated sample by sample and `friendly` is cleared, so the
+/// rest of the block goes sample by sample too. Samples that fall back get exactly the scalar
+/// path's numbers; the others are within the lane functions' documented accuracy.
+pub(crate) fn evaluate_group<N: Dim, D: Dim>(
+    nd: N,
+    states: [&[f64]; LANES],
+    friendly: &mut bool,
+    on_lanes: impl FnOnce(&OVector<Lanes, N>) -> OVector<Lanes, D>,
+    on_f64: impl Fn(&OVector<f64, N>) -> OVector<f64, D>,
+) -> [OVector<f64, D>; LANES]
+where
+    DefaultAllocator: nalgebra::allocator::Allocator<N> + nalgebra::allocator::Allocator<D>,
+{
+    if *friendly {
+        let x = OVector::<Lanes, N>::from_fn_generic(nd, U1, |i, _| {
+            Lanes::new(std::array::from_fn(|l| states[l][i]))
+        });
+        if let Some(y) = attempt(|| on_lanes(&x)) {
+            let (od, _) = y.shape_generic();
+            return std::array::from_fn(|l| {
+                OVector::<f64, D>::from_fn_generic(od, U1, |i, _| y[i].lane(l))
+            });
+        }
+        *friendly = false;
+    }
+    std::array::from_fn(|l| on_f64(&vector(nd, states[l])))
+}
+
+/// The `lanes` option shared by the sampling filters.
+pub(crate) const LANES_OPTION: crate::spec::OptionInfo = crate::spec::OptionInfo {
+    key: "lanes",
+    default: "off",
+    about: "on: evaluate the plant over 4 samples per call in SIMD lanes",
+};
+
+/// h(xₖ) of every sample xₖ of `block` (`n` values each), in order, handed to `emit(k, h(xₖ))`:
+/// four samples per call over lanes when `lanes` ([`evaluate_group`]), else one by one.
+pub(crate) fn measure_each<M: Model>(
+    model: &M,
+    block: &[f64],
+    lanes: bool,
+    u: &[f64],
+    t: f64,
+    mut emit: impl FnMut(usize, OVector<f64, M::Meas>),
+) where
+    DefaultAllocator: Alloc<M::State, M::Meas>,
+{
+    let nd = model.state_dim();
+    let n = nd.value();
+    if !lanes {
+        for (k, x) in block.chunks_exact(n).enumerate() {
+            emit(k, model.measure(&vector(nd, x), u, t));
+        }
+        return;
+    }
+    let mut friendly = true;
+    for (g, group) in block.chunks(n * LANES).enumerate() {
+        let values = evaluate_group(
+            nd,
+            group_states(group, n),
+            &mut friendly,
+            |x| model.measure(x, u, t),
+            |x| model.measure(x, u, t),
+        );
+        for (l, z) in values.into_iter().take(group.len() / n).enumerate() {
+            emit(g * LANES + l, z);
+        }
+    }
+}
+
 /// Adds Gaussian noise L ε to every sample (`centre = None`: roughening, regularisation) or
 /// replaces every sample by `centre + L ε` (draws from N(centre, L Lᵀ)), `factor` = L
 /// column-major, then projects it onto the model's feasible set. Streams are keyed
@@ -217,6 +299,9 @@ pub(crate) struct Propagation<'a> {
     pub key: u64,
     /// Step index for the stream key.
     pub step: u64,
+    /// Evaluate the transition over [`LANES`] samples per call ([`evaluate_group`]); used only
+    /// where the transition is applied to the samples themselves (`anchors` is `None`).
+    pub lanes: bool,
 }
 
 /// Propagates every sample through the transition density: xᵢ ← f(xᵢ) + w, w ~ N(0, Q), then
@@ -248,21 +333,15 @@ where
             let u = how.input;
             let shared = square(nd, how.factor);
             let (mut lost, mut failed) = (0usize, false);
-            for (k, sample) in chunk.chunks_exact_mut(n).enumerate() {
-                let i = b * BLOCK + k;
-                let source = how.ancestors.map_or(i, |a| a[i]);
-                let start = match how.previous {
-                    Some(p) => vector(nd, &p[source * n..(source + 1) * n]),
-                    None => vector(nd, sample),
-                };
-                let mut x = match how.anchors {
-                    Some(a) => vector(nd, &a[source * n..(source + 1) * n]),
-                    None => model.transition(&start, u, how.t, how.dt),
-                };
+            // Adds the process noise to the transition mean `x` of the sample that started at
+            // `start`, projects it and stores it (NaN and counted if it is not finite).
+            let mut finish = |start: &OVector<f64, M::State>,
+                              mut x: OVector<f64, M::State>,
+                              sample: &mut [f64]| {
                 match how.noise {
                     NoiseAt::Mean => add_gaussian(&mut x, &shared, &mut rng),
                     NoiseAt::Each => {
-                        let q = model.process_noise(&start, u, how.t, how.dt);
+                        let q = model.process_noise(start, u, how.t, how.dt);
                         match lower_factor(&q, "process noise covariance Q") {
                             Ok(l) => add_gaussian(&mut x, &l, &mut rng),
                             Err(_) => failed = true,
@@ -275,6 +354,35 @@ where
                 } else {
                     sample.fill(f64::NAN);
                     lost += 1;
+                }
+            };
+            if how.lanes && how.anchors.is_none() && how.previous.is_none() {
+                let mut friendly = true;
+                for group in chunk.chunks_mut(n * LANES) {
+                    let means = evaluate_group(
+                        nd,
+                        group_states(group, n),
+                        &mut friendly,
+                        |x| model.transition(x, u, how.t, how.dt),
+                        |x| model.transition(x, u, how.t, how.dt),
+                    );
+                    for (x, sample) in means.into_iter().zip(group.chunks_exact_mut(n)) {
+                        finish(&vector(nd, sample), x, sample);
+                    }
+                }
+            } else {
+                for (k, sample) in chunk.chunks_exact_mut(n).enumerate() {
+                    let i = b * BLOCK + k;
+                    let source = how.ancestors.map_or(i, |a| a[i]);
+                    let start = match how.previous {
+                        Some(p) => vector(nd, &p[source * n..(source + 1) * n]),
+                        None => vector(nd, sample),
+                    };
+                    let x = match how.anchors {
+                        Some(a) => vector(nd, &a[source * n..(source + 1) * n]),
+                        None => model.transition(&start, u, how.t, how.dt),
+                    };
+                    finish(&start, x, sample);
                 }
             }
             slot[0] = lost as f64;

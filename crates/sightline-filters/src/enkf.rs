@@ -68,6 +68,7 @@ pub const INFO: KindInfo = KindInfo {
             default: "mean",
             about: "process noise Q at the ensemble mean | each member",
         },
+        cloud::LANES_OPTION,
     ],
     linear_only: false,
     sampling: true,
@@ -82,6 +83,9 @@ pub struct EnkfConfig {
     pub inflation: f64,
     /// Where Q is evaluated.
     pub noise: NoiseAt,
+    /// Evaluate the plant's transition and measurement over four members per call
+    /// (`lanes=on`; see [`sightline_core::lanes`]).
+    pub lanes: bool,
 }
 
 impl Default for EnkfConfig {
@@ -90,6 +94,7 @@ impl Default for EnkfConfig {
             members: 100,
             inflation: 1.0,
             noise: NoiseAt::Mean,
+            lanes: false,
         }
     }
 }
@@ -269,10 +274,12 @@ pub fn config_from_spec(spec: &FilterSpec) -> Result<EnkfConfig, SpecError> {
         "each" => NoiseAt::Each,
         _ => NoiseAt::Mean,
     };
+    let lanes = o.switch("lanes", defaults.lanes)?;
     Ok(EnkfConfig {
         members,
         inflation,
         noise,
+        lanes,
     })
 }
 
@@ -329,6 +336,7 @@ where
             ancestors: None,
             key: purpose::PREDICT,
             step: self.tag.step as u64,
+            lanes: self.config.lanes,
         };
         let lost = cloud::propagate(
             &self.model,
@@ -387,16 +395,16 @@ where
         // Predicted measurements of the members.
         let members = self.members.as_slice();
         let us = input;
+        let lanes = self.config.lanes;
         self.predicted_meas
             .as_mut_slice()
             .par_chunks_mut(m * BLOCK)
             .zip(members.par_chunks(n * BLOCK))
             .with_min_len(min_blocks_per_job())
             .for_each(|(meas, xs)| {
-                let u = us;
-                for (z, x) in meas.chunks_exact_mut(m).zip(xs.chunks_exact(n)) {
-                    z.copy_from_slice(model.measure(&vector(nd, x), u, t).as_slice());
-                }
+                cloud::measure_each(model, xs, lanes, us, t, |k, z| {
+                    meas[k * m..(k + 1) * m].copy_from_slice(z.as_slice());
+                });
             });
         ensure_finite(
             self.predicted_meas.iter(),
@@ -547,7 +555,8 @@ mod tests {
             EnkfConfig {
                 members: 500,
                 inflation: 1.02,
-                noise: NoiseAt::Each
+                noise: NoiseAt::Each,
+                lanes: false,
             }
         );
         for (bad, word) in [

@@ -113,7 +113,10 @@ fn allocations(spec: &str, pool: &rayon::ThreadPool, steps: usize) -> usize {
     })
 }
 
-const SPECS: [&str; 7] = [
+const SPECS: [&str; 10] = [
+    // The lane path (four particles per plant call), with a short last group of one particle.
+    "pf:particles=5001,lanes=on",
+    "pf:particles=5001,ess=1,lanes=on,noise=each,roughening=0.2",
     "pf:particles=5000,ess=1,roughening=0.2",
     "pf:particles=5000,temper=0.9",
     "pf:particles=5000,ess=1,resample=multinomial,regularise=on,noise=each",
@@ -121,6 +124,7 @@ const SPECS: [&str; 7] = [
     "pf:particles=3000,ess=1,resample=stratified,variant=auxiliary,noise=each,redraw=on",
     "enkf:members=3000,inflation=1.05",
     "enkf:members=2500,noise=each",
+    "enkf:members=2501,lanes=on",
 ];
 
 // One test function: the counter is global, so the checks must not run concurrently.
