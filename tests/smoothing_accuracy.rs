@@ -29,6 +29,7 @@ fn smoothed_rmse_is_below_filtered_rmse_on_every_shipped_plant() {
         ("cstr", &["ekf", "ukf"]),
         ("tracking", &["ekf", "ckf"]),
         ("tankchain", &["ekf", "ukf"]),
+        ("local-level", &["kf", "ukf"]),
     ];
     let plants = shipped();
     let mut covered = Vec::new();

@@ -169,9 +169,12 @@ impl CostFunction for Objective<'_> {
     type Output = f64;
 
     fn cost(&self, z: &Self::Param) -> std::result::Result<f64, argmin::core::Error> {
-        // A signal stops the search at the next evaluation (see `crate::interrupt`).
+        // A signal stops the search at the next evaluation (see `crate::interrupt`): every
+        // point is then the worst, so the simplex collapses at once, and `tune` reports the
+        // interruption after the run. Not an error here: argmin unwraps the costs of its
+        // initial simplex, so an error there would be a panic.
         if crate::interrupt::requested() {
-            return Err(argmin::core::Error::msg(crate::interrupt::describe()));
+            return Ok(f64::MAX);
         }
         let ll = self.evaluate(z);
         if let Ok(mut trace) = self.trace.lock() {
@@ -296,6 +299,7 @@ pub fn tune(
                 Ok(()) => Error::Run(format!("tune: optimiser: {e}")),
             },
         )?;
+    crate::interrupt::check(|| "during the search".into())?;
     let state = result.state();
     let best = state
         .get_best_param()
@@ -349,6 +353,7 @@ pub fn tune(
 fn refuse_flat(objective: &Objective<'_>, z0: &[f64], ll: f64) -> Result<()> {
     let tolerance = FLAT_TOLERANCE * ll.abs().max(1.0);
     for (i, c) in objective.coords.iter().enumerate() {
+        crate::interrupt::check(|| "before the search".into())?;
         let step = simplex_step(c, z0[i]);
         let moved = [step, -step].iter().any(|&s| {
             let mut z = z0.to_vec();
