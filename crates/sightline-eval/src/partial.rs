@@ -419,6 +419,7 @@ fn validate_settings(
 ///     filters: vec![],
 ///     pcrlb: None,
 ///     settings: None,
+///     pairs: vec![],
 /// };
 /// assert_eq!(
 ///     sightline_eval::partial::describe(&totals),

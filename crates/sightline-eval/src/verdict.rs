@@ -178,20 +178,18 @@ fn ranking_lines(
         };
         let text = if by_rmse {
             format!(
-                "{} is {} {} accurate at {}",
+                "{} is {} {} accurate",
                 f.label,
                 percent(v.difference, v.interval),
                 if v.difference > 0.0 { "less" } else { "more" },
-                cost_ratio(f, reference)
             )
         } else {
             format!(
-                "{}'s log-likelihood is {} [{}, {}] lower at {}",
+                "{}'s log-likelihood is {} [{}, {}] lower",
                 f.label,
                 sig(-v.difference, 3),
                 sig(-v.interval[1], 3),
                 sig(-v.interval[0], 3),
-                cost_ratio(f, reference)
             )
         };
         others.push((v.difference.abs(), text));
@@ -482,9 +480,26 @@ pub fn verdict(
         ));
     }
 
-    // Cost.
+    // Cost (every wall-clock figure stays on this one line, so that the rest of the verdict
+    // is reproducible).
+    let relative = best
+        .first()
+        .and_then(|l| ok.iter().copied().find(|f| &f.label == l))
+        .map(|reference| {
+            let others: Vec<String> = ok
+                .iter()
+                .filter(|f| f.label != reference.label)
+                .map(|f| format!("{} {}", f.label, cost_ratio(f, reference)))
+                .collect();
+            if others.is_empty() {
+                String::new()
+            } else {
+                format!("; against {}: {}", reference.label, others.join(", "))
+            }
+        })
+        .unwrap_or_default();
     lines.push(format!(
-        "Cost per step: {}.",
+        "Cost per step: {}{relative}.",
         ok.iter()
             .map(|f| format!("{} {}", f.label, duration(f.seconds_per_step)))
             .collect::<Vec<_>>()
@@ -648,10 +663,14 @@ mod tests {
             "{v}"
         );
         assert!(
-            v.contains("Against ukf (paired 95 % intervals): ckf is 100 % [80, 120] less accurate at 1.0× the cost; enkf is 200 % [150, 250] less accurate at 5.0× the cost."),
+            v.contains("Against ukf (paired 95 % intervals): ckf is 100 % [80, 120] less accurate; enkf is 200 % [150, 250] less accurate."),
             "{v}"
         );
         assert!(!v.contains("iekf is"), "{v}");
+        assert!(
+            v.contains("against ukf: ekf 0.25× the cost, ckf 1.0× the cost"),
+            "{v}"
+        );
         let v = verdict(
             &[
                 filter("ukf", 0.100, 2.0, 2e-6),
