@@ -66,11 +66,16 @@ fn run(f: &mut dyn Filter, rows: &[(f64, f64)]) -> (Vec<f64>, Vec<f64>, f64) {
     (means, vars, ll)
 }
 
+/// What a diffuse observation with F∞ = 1 adds to the diffuse log-likelihood: −½(ln 2π + ln F∞)
+/// (D&K §7.2.2, eq. 7.4, from memory).
+const DIFFUSE_FIRST: f64 = -0.918_938_533_204_672_7;
+
 /// Closed form (Durbin & Koopman, *Time Series Analysis by State Space Methods*, 2nd ed. 2012,
 /// §2.9, from memory): on the local-level model the exact diffuse filter after the first
 /// observation y₁ has mean y₁ and variance σ²_ε = r whatever the prior; the prediction adds
-/// σ²_η = q. The first observation is the diffuse part: it adds nothing to the diffuse
-/// log-likelihood (D&K §7.2.2).
+/// σ²_η = q. The first observation is the diffuse part: in the diffuse log-likelihood (D&K
+/// §7.2.2, eq. 7.4, from memory) it adds only the constant −½ ln 2π, its w₁ = ln F∞ being 0
+/// (P∞ = 1).
 #[test]
 fn local_level_after_one_observation_has_mean_y1_and_variance_r() {
     for (q, r, y1) in [
@@ -84,7 +89,7 @@ fn local_level_after_one_observation_has_mean_y1_and_variance_r() {
         f.update(&[y1], &[], 0.0).unwrap();
         assert_eq!(f.mean()[0], y1, "q={q} r={r}");
         assert!((f.covariance()[0] - r).abs() <= 1e-12 * r, "q={q} r={r}");
-        assert_eq!(f.log_likelihood_increment(), 0.0);
+        assert!((f.log_likelihood_increment() - DIFFUSE_FIRST).abs() < 1e-15);
         assert!(f.innovation().is_none(), "no NIS for a diffuse update");
         f.predict(&[], 0.0, 1.0).unwrap();
         assert!((f.covariance()[0] - (r + q)).abs() <= 1e-12 * (r + q));
@@ -154,7 +159,13 @@ fn nile_matches_the_reference_script() {
     let want = reference["diffuse_log_likelihood"].as_f64().unwrap();
     let differences = reference["differences_log_likelihood"].as_f64().unwrap();
     assert!((ll - want).abs() < 1e-9, "{ll} vs {want}");
-    assert!((ll - differences).abs() < 1e-9, "{ll} vs {differences}");
+    // D&K eq. (7.4) counts the constant of every observation, the differences' likelihood
+    // one fewer.
+    let first_constant = -0.5 * (2.0 * std::f64::consts::PI).ln();
+    assert!(
+        (ll - (differences + first_constant)).abs() < 1e-9,
+        "{ll} vs {differences} + {first_constant}"
+    );
 }
 
 /// The large-variance approximation (κ = 10⁸ × the declared prior variance) agrees with the exact
@@ -233,7 +244,8 @@ fn two_diffuse_states_take_two_observations() {
             assert!((exact.covariance()[0] - 0.04).abs() < 1e-12);
             // The velocity's reported variance stands for "unbounded": κ = 10⁸ × sd0² = 10⁸.
             assert!(exact.covariance()[3] >= 1e8);
-            assert_eq!(exact.log_likelihood_increment(), 0.0);
+            // The position's F∞ = 1 (P∞ = I): only the constant (D&K eq. 7.4).
+            assert!((exact.log_likelihood_increment() - DIFFUSE_FIRST).abs() < 1e-15);
             continue;
         }
         if k == 1 {

@@ -116,7 +116,16 @@ fn every_shipped_plant_evaluates_in_lanes_as_with_f64_or_is_detected_as_branchin
     // The plants written with select/max/smooth_max are lane-friendly; `tracking` branches on
     // its turn rate (series near zero) and its bearing, so it must be detected, not mis-evaluated.
     let find = |name: &str| gaps.0.iter().find(|g| g.0 == name).unwrap();
-    for name in ["pendulum", "cv", "ungm", "quadtank", "cstr", "tankchain"] {
+    let lane_friendly = [
+        "pendulum",
+        "cv",
+        "ungm",
+        "quadtank",
+        "cstr",
+        "tankchain",
+        "local-level",
+    ];
+    for name in lane_friendly {
         let (_, t, m) = find(name);
         assert!(t.is_some() && m.is_some(), "{name} should be lane-friendly");
     }
@@ -124,7 +133,7 @@ fn every_shipped_plant_evaluates_in_lanes_as_with_f64_or_is_detected_as_branchin
         find("tracking").1.is_none(),
         "tracking branches on its turn rate"
     );
-    assert_eq!(friendly, 6);
+    assert_eq!(friendly, lane_friendly.len());
 }
 
 fn plant(name: &str) -> Box<dyn AnyPlant> {

@@ -132,6 +132,7 @@ fn the_campaign_interval_covers_the_exact_expected_rmse() {
             filters: vec!["ekf".into()],
             every: 1,
             dropout: 0.0,
+            diffuse: Vec::new(),
         };
         let totals =
             campaign::run_campaign(plant.as_ref(), &specs(&["ekf"]), &spec, 0..runs).unwrap();

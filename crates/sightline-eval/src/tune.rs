@@ -273,6 +273,8 @@ pub fn tune(
     };
     let z0: Vec<f64> = coords.iter().map(|c| c.to_search(start[&c.name])).collect();
     let start_ll = objective.evaluate(&z0);
+    // An evaluation cut short by a signal is not a failing filter.
+    crate::interrupt::check(|| "at the starting parameters".into())?;
     let Some(start_value) = start_ll else {
         return Err(Error::Run(format!(
             "tune: filter '{}' fails at the starting parameters; set a better start with --set",

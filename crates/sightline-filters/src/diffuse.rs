@@ -10,12 +10,13 @@
 //!   measurement vector is processed one component at a time (the univariate treatment, D&K
 //!   §6.4; a correlated R is first decorrelated by its Cholesky factor, D&K §6.4.3), so that
 //!   F∞ = zᵀP∞z is a scalar and the two cases F∞ > 0 / F∞ = 0 are exact. Its log-likelihood is
-//!   the diffuse log-likelihood of D&K §7.2.2, eq. (7.4): a component with F∞ > 0 contributes
-//!   w = −½ ln F∞ in place of its (unbounded) prediction-error term, and the constant −½ ln 2π
-//!   is counted only for the other components, which contribute the usual
-//!   −½(ln 2π + ln F + v²/F). On the local-level model (P∞ = 1, so w = 0) this is exactly the
-//!   likelihood of the differenced series, which the level drops out of (checked against an
-//!   independent dense computation in `tests/diffuse_start.rs`).
+//!   the diffuse log-likelihood of D&K §7.2.2, eq. (7.4) (quoted from memory):
+//!   ln L_d = −(np/2) ln 2π − ½ Σ_diffuse w − ½ Σ_rest (ln F + v²/F), so a component with
+//!   F∞ > 0 contributes −½(ln 2π + ln F∞) in place of its (unbounded) prediction-error term and
+//!   the others the usual −½(ln 2π + ln F + v²/F). On the local-level model (P∞ = 1, so
+//!   ln F∞ = 0) this is the likelihood of the differenced series, which the level drops out of,
+//!   less one −½ ln 2π for the first observation (checked against an independent dense
+//!   computation in `tests/diffuse_start.rs`).
 //! - The other Gaussian filters (`ekf`, `iekf`, `ukf`, `ckf`, `ghkf`, `srukf`, and `kf` with a
 //!   constant gain, whose mean does not use the covariance) use the **large-variance
 //!   approximation** ([`large_variance_prior`]): each diffuse state gets prior variance
@@ -267,7 +268,7 @@ where
     /// v = y − zᵀa, F∞ = zᵀP∞z, F* = zᵀP*z + σ², M∞ = P∞z, M* = P*z,
     /// - F∞ > 0: a ← a + M∞v/F∞, P∞ ← P∞ − M∞M∞ᵀ/F∞,
     ///   P* ← P* + M∞M∞ᵀF*/F∞² − (M∞M*ᵀ + M*M∞ᵀ)/F∞ (the κ⁰ terms of P − MMᵀ/F as κ → ∞);
-    ///   log-likelihood −½ ln F∞;
+    ///   log-likelihood −½(ln 2π + ln F∞) (D&K eq. 7.4: the constant counts every observation);
     /// - F∞ = 0: the ordinary scalar update with F*, P∞ unchanged.
     fn diffuse_update(&mut self, y: &[f64], u: &[f64], t: f64) -> Result<(), FilterError> {
         let b = &mut self.kf.belief;
@@ -339,7 +340,7 @@ where
                 b.cov += &m_inf * m_inf.transpose() * (f_star / (f_inf * f_inf))
                     - (&cross + cross.transpose()) / f_inf;
                 self.p_inf -= &m_inf * m_inf.transpose() / f_inf;
-                increment -= 0.5 * f_inf.ln();
+                increment -= 0.5 * (LN_2PI + f_inf.ln());
             } else {
                 b.mean += &m_star * (v / f_star);
                 b.cov -= &m_star * m_star.transpose() / f_star;

@@ -559,7 +559,7 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &CompareArgs) -> Result<()> {
     }
     if !args.diffuse.is_empty() && specs.iter().any(|s| s.kind == "kf") && specs.len() > 1 {
         let note = "with --diffuse, kf's log-likelihood is the exact diffuse one (the diffuse \
-                    period's terms left out) while the other filters' start from a large-variance \
+                    period's prediction errors replaced by −½ ln F∞) while the other filters' start from a large-variance \
                     prior and keep its ln κ terms: compare log-likelihoods with kf's only after \
                     removing the first rows, or among the other filters"
             .to_string();
