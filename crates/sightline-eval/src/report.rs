@@ -1192,7 +1192,7 @@ pub fn compare_plots(
             log_x: false,
             y_range: None,
             clipped: Vec::new(),
-            gaps: Vec::new(),
+            gaps: gaps.clone(),
             clock: Some(clock.clone()),
             caption: format!(
                 "Measurement {} as recorded; gaps are missing values.",
@@ -1228,7 +1228,7 @@ pub fn compare_plots(
                 log_x: false,
                 y_range: None,
                 clipped: Vec::new(),
-                gaps: Vec::new(),
+                gaps: gaps.clone(),
                 clock: Some(clock.clone()),
                 caption: format!(
                     "Normalised estimation error squared eᵀP⁻¹e of each posterior; a consistent \
@@ -1265,7 +1265,7 @@ pub fn compare_plots(
             log_x: false,
             y_range: None,
             clipped: Vec::new(),
-            gaps: Vec::new(),
+            gaps: gaps.clone(),
             clock: Some(clock.clone()),
             caption: format!(
                 "Normalised innovation squared νᵀS⁻¹ν of each update; the band is that of all {m} \
@@ -1405,7 +1405,7 @@ fn smoothed_plots(
             log_x: false,
             y_range: None,
             clipped: Vec::new(),
-            gaps: Vec::new(),
+            gaps: measurement_gaps(series),
             caption: format!(
                 "State {}: each smoother's estimate from all the measurements (--smooth), with \
                  its ±2σ band{}. Rauch–Tung–Striebel for the Gaussian filters (sigma-point and \
