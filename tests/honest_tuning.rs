@@ -166,3 +166,39 @@ fn tuning_refuses_what_cannot_be_estimated() {
         assert!(!out.exists());
     }
 }
+
+/// A sweep names several filters; `tune` maximises one likelihood, so it refuses the sweep by
+/// name (exit 2) instead of reporting the swept value as an invalid number.
+#[test]
+fn a_sweep_is_refused_with_where_sweeps_belong() {
+    let tmp = tempfile::tempdir().unwrap();
+    let data = tmp.path().join("d.csv");
+    let simulated = sightline(&[
+        "simulate",
+        "cv",
+        "--steps",
+        "50",
+        "--seed",
+        "4",
+        "-o",
+        s(&data),
+    ]);
+    assert_eq!(simulated.status.code(), Some(0));
+    let out = tmp.path().join("o");
+    let o = sightline(&[
+        "tune",
+        "cv",
+        s(&data),
+        "-f",
+        "ukf:alpha=0.5|1",
+        "--param",
+        "q",
+        "-o",
+        s(&out),
+    ]);
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{stderr}");
+    assert!(stderr.contains("a sweep"), "{stderr}");
+    assert!(stderr.contains("compare"), "{stderr}");
+    assert!(!out.exists());
+}

@@ -42,6 +42,14 @@ pub fn run(plants: &[Box<dyn AnyPlant>], args: &TuneArgs) -> Result<()> {
     crate::output::refuse_inputs_inside(&args.output, &[("dataset", &args.data)])?;
     let mut plant = configure(plants, &args.plant)?;
     plant.set_diffuse(&args.diffuse)?;
+    if args.filter.contains('|') {
+        return Err(Error::Usage(format!(
+            "tune -f '{}': a sweep (key=a|b|...) names several filters, and tune maximises the \
+             likelihood of one; tune each value with its own -f, or compare them with \
+             `compare` or `montecarlo`, which expand sweeps",
+            args.filter
+        )));
+    }
     let spec = FilterSpec::parse(&args.filter)?;
     // The same seed `compare --seed S` gives this label, so the likelihoods agree.
     let seed = filter_seed(args.seed, &spec.label);
