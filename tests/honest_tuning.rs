@@ -4,7 +4,7 @@
 
 mod common_cli;
 
-use common_cli::{json, s, sightline};
+use common_cli::{json, s, sightline, simulated};
 use sightline::eval::simulate::SimOptions;
 use sightline::eval::tune::tune;
 use sightline::{AnyPlant, FilterSpec, shipped};
@@ -129,18 +129,7 @@ fn sampling_filters_withhold_standard_errors_and_follow_the_seed() {
 #[test]
 fn tuning_refuses_what_cannot_be_estimated() {
     let tmp = tempfile::tempdir().unwrap();
-    let data = tmp.path().join("cv.csv");
-    let simulated = sightline(&[
-        "simulate",
-        "cv",
-        "--steps",
-        "50",
-        "--seed",
-        "4",
-        "-o",
-        s(&data),
-    ]);
-    assert_eq!(simulated.status.code(), Some(0));
+    let data = simulated(&tmp.path().join("cv.csv"), "cv", 50, 4);
     let empty = tmp.path().join("empty.csv");
     std::fs::write(&empty, "t,y.pos\n0,\n0.1,\n0.2,\n").unwrap();
     let one = tmp.path().join("one.csv");
@@ -172,18 +161,7 @@ fn tuning_refuses_what_cannot_be_estimated() {
 #[test]
 fn a_sweep_is_refused_with_where_sweeps_belong() {
     let tmp = tempfile::tempdir().unwrap();
-    let data = tmp.path().join("d.csv");
-    let simulated = sightline(&[
-        "simulate",
-        "cv",
-        "--steps",
-        "50",
-        "--seed",
-        "4",
-        "-o",
-        s(&data),
-    ]);
-    assert_eq!(simulated.status.code(), Some(0));
+    let data = simulated(&tmp.path().join("d.csv"), "cv", 50, 4);
     let out = tmp.path().join("o");
     let o = sightline(&[
         "tune",

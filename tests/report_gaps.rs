@@ -3,25 +3,12 @@
 //! must see, since every estimate inside it is a pure prediction.
 
 mod common_cli;
-use common_cli::{expect, s};
+use common_cli::{expect, s, simulated};
 
 #[test]
 fn an_outage_is_shaded_on_every_time_plot() {
     let tmp = tempfile::tempdir().unwrap();
-    let data = tmp.path().join("data.csv");
-    expect(
-        &[
-            "simulate",
-            "cv",
-            "--steps",
-            "300",
-            "--seed",
-            "5",
-            "-o",
-            s(&data),
-        ],
-        0,
-    );
+    let data = simulated(&tmp.path().join("data.csv"), "cv", 300, 5);
     // A 60-row outage of the only sensor (rows 100..160): far longer than twice the regular
     // interval, so it is a gap in the sense of `report::measurement_gaps`.
     let text = std::fs::read_to_string(&data).unwrap();

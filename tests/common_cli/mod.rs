@@ -25,6 +25,25 @@ pub fn expect(args: &[&str], code: i32) -> String {
     String::from_utf8_lossy(&out.stdout).into_owned()
 }
 
+/// Simulates `steps` rows of `model` with `seed` into `file` (asserting success) and returns it.
+pub fn simulated(file: &Path, model: &str, steps: u64, seed: u64) -> std::path::PathBuf {
+    let (steps, seed) = (steps.to_string(), seed.to_string());
+    expect(
+        &[
+            "simulate",
+            model,
+            "--steps",
+            &steps,
+            "--seed",
+            &seed,
+            "-o",
+            s(file),
+        ],
+        0,
+    );
+    file.to_path_buf()
+}
+
 /// Path as &str.
 pub fn s(p: &Path) -> &str {
     p.to_str().unwrap()
